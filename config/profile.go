@@ -20,8 +20,13 @@ type Profile struct {
 	File string `toml:"-"`
 	// Hash is the hex SHA-256 of the file's bytes.
 	Hash string `toml:"-"`
+	// Text is the file's content as read.
+	Text string `toml:"-"`
+	// Warnings are problems that do not stop the profile from loading.
+	Warnings []*Problem `toml:"-"`
 	// Source text positions of keys, for errors found after parsing.
 	pos positions
+	exp *Expanded
 }
 
 // Pack describes the pack itself.
