@@ -1,0 +1,136 @@
+package sim
+
+import "math"
+
+// Model is the simulated pack: cells in series carrying one current, and
+// temperature sensors as thermal nodes. It knows no time of day, frames or
+// scenario; Step moves it forward. Not safe for concurrent use.
+type Model struct {
+	Cells   []Cell
+	Sensors []SensorNode
+	// AmbientC is the ambient temperature in °C.
+	AmbientC float64
+	// Contactor is the true state of the main contactor (closed = true).
+	Contactor bool
+
+	// I is the current of the latest step, A, positive charging.
+	I float64
+	// T is simulated time since the model started, s.
+	T float64
+	// ChargeAs is the charge that flowed through the pack, ∫I dt in A·s
+	// (positive charging), over the model's life.
+	ChargeAs float64
+}
+
+// SensorNode is one temperature sensor: a lumped thermal node heated by the
+// cells it sits on and by any conductor it touches.
+type SensorNode struct {
+	Thermal
+	// Cells are the indexes of the cells whose heat reaches this node; the
+	// node's heat is their mean dissipation times len(Cells).
+	Cells []int
+	// ExtraOhm is the resistance of a busbar or link the sensor sits on,
+	// heated by I²·ExtraOhm.
+	ExtraOhm float64
+	// HeatW is a fixed extra heat input in W (a nearby hot part; faults).
+	HeatW float64
+}
+
+// PackVoltage is the sum of the cell terminal voltages with current i now.
+func (m *Model) PackVoltage(i float64) float64 {
+	var v float64
+	for k := range m.Cells {
+		v += m.Cells[k].Voltage(i)
+	}
+	return v
+}
+
+// CellVoltageRange gives the lowest and highest cell terminal voltage with
+// current i now.
+func (m *Model) CellVoltageRange(i float64) (lo, hi float64) {
+	lo, hi = math.Inf(1), math.Inf(-1)
+	for k := range m.Cells {
+		v := m.Cells[k].Voltage(i)
+		lo = math.Min(lo, v)
+		hi = math.Max(hi, v)
+	}
+	return lo, hi
+}
+
+// CurrentLimits is the range of current every cell can take for dt seconds
+// without any state of charge leaving 0..1.
+func (m *Model) CurrentLimits(dt float64) (lo, hi float64) {
+	lo, hi = math.Inf(-1), math.Inf(1)
+	for k := range m.Cells {
+		l, h := m.Cells[k].CurrentLimits(dt)
+		lo = math.Max(lo, l)
+		hi = math.Min(hi, h)
+	}
+	return lo, hi
+}
+
+// CVCurrent is the charging current that brings the pack's terminal voltage
+// to vTarget at the end of a step of dt seconds, from the exact one-RC update
+// (the small change of OCV within one step is neglected). It may be negative
+// when the pack already stands above vTarget; the charger clamps it.
+func (m *Model) CVCurrent(vTarget, dt float64) float64 {
+	var num, den float64
+	for k := range m.Cells {
+		c := &m.Cells[k]
+		a := c.decay(dt)
+		num += c.OCV.At(c.z) + c.R1*a*c.iR1
+		den += c.R0 + c.R1*(1-a)
+	}
+	if den <= 0 {
+		return 0
+	}
+	return (vTarget - num) / den
+}
+
+// Step holds current i (A, positive charging) for dt seconds. The current is
+// first limited so that no cell's state of charge leaves 0..1, and is zero
+// while the contactor is open. It returns the current actually applied.
+func (m *Model) Step(i, dt float64) float64 {
+	if !m.Contactor {
+		i = 0
+	}
+	lo, hi := m.CurrentLimits(dt)
+	i = clamp(i, lo, hi)
+	for k := range m.Sensors {
+		s := &m.Sensors[k]
+		var p float64
+		for _, c := range s.Cells {
+			p += m.Cells[c].Heat(i)
+		}
+		p += i*i*s.ExtraOhm + s.HeatW
+		s.Step(p, m.AmbientC, dt)
+	}
+	for k := range m.Cells {
+		m.Cells[k].Step(i, dt)
+	}
+	m.I = i
+	m.T += dt
+	m.ChargeAs += i * dt
+	return i
+}
+
+// MeanSOC is the mean state of charge of the cells, 0..1.
+func (m *Model) MeanSOC() float64 {
+	if len(m.Cells) == 0 {
+		return 0
+	}
+	var s float64
+	for k := range m.Cells {
+		s += m.Cells[k].z
+	}
+	return s / float64(len(m.Cells))
+}
+
+// StoredAh is the charge held by the cells, Σ z·Q, in ampere-hours.
+func (m *Model) StoredAh() float64 {
+	var s float64
+	for k := range m.Cells {
+		s += m.Cells[k].z * m.Cells[k].CapacityAh
+	}
+	return s
+}
