@@ -652,4 +652,3 @@ func digitsPrefix(s string) int {
 	}
 	return i
 }
-
