@@ -99,7 +99,12 @@ func levenshtein(a, b string) int {
 func closest(s string, candidates []string) string {
 	best, bestD := "", 1<<30
 	for _, c := range candidates {
-		if d := levenshtein(s, c); d < bestD {
+		d := levenshtein(s, c)
+		// "capacty" is near "capacity_ah": compare without a unit suffix too.
+		if i := strings.LastIndexByte(c, '_'); i > 0 {
+			d = min(d, levenshtein(s, c[:i])+1)
+		}
+		if d < bestD {
 			best, bestD = c, d
 		}
 	}

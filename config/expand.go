@@ -159,14 +159,34 @@ func sourceFor(p *Profile, name string, can bool) (int, error) {
 	return -1, fmt.Errorf("no serial-text source for this line")
 }
 
+// keyError is an error about one key of a table.
+type keyError struct {
+	key string
+	msg string
+}
+
+func (e *keyError) Error() string { return e.msg }
+
+func keyErr(key, format string, args ...any) error {
+	return &keyError{key: key, msg: fmt.Sprintf(format, args...)}
+}
+
+// errKey is the key an error from fieldLayout is about, "" for the table.
+func errKey(err error) string {
+	if ke, ok := err.(*keyError); ok {
+		return "." + ke.key
+	}
+	return ""
+}
+
 // fieldLayout computes a field's layout and element stride from its keys.
 func fieldLayout(f *Field) (Layout, int, error) {
 	if f.Byte == nil {
-		return Layout{}, 0, fmt.Errorf("byte is required")
+		return Layout{}, 0, keyErr("", "byte is required")
 	}
 	b := *f.Byte
 	if b < 0 || b > 7 {
-		return Layout{}, 0, fmt.Errorf("byte %d is outside 0..7", b)
+		return Layout{}, 0, keyErr("byte", "byte %d is outside 0..7", b)
 	}
 	big := false
 	switch f.Order {
@@ -174,25 +194,25 @@ func fieldLayout(f *Field) (Layout, int, error) {
 	case "big":
 		big = true
 	default:
-		return Layout{}, 0, fmt.Errorf("order %q: use \"little\" or \"big\"", f.Order)
+		return Layout{}, 0, keyErr("order", "order %q: use \"little\" or \"big\"", f.Order)
 	}
 	if f.Bit != nil || f.Bits != 0 {
 		if f.Size != 0 {
-			return Layout{}, 0, fmt.Errorf("give either size (bytes) or bit and bits, not both")
+			return Layout{}, 0, keyErr("size", "give either size (bytes) or bit and bits, not both")
 		}
 		bit := 0
 		if f.Bit != nil {
 			bit = *f.Bit
 		}
 		if bit < 0 || bit > 7 {
-			return Layout{}, 0, fmt.Errorf("bit %d is outside 0..7", bit)
+			return Layout{}, 0, keyErr("bit", "bit %d is outside 0..7", bit)
 		}
 		n := f.Bits
 		if n == 0 {
 			n = 1
 		}
 		if n < 1 || n > 32 {
-			return Layout{}, 0, fmt.Errorf("bits %d is outside 1..32", n)
+			return Layout{}, 0, keyErr("bits", "bits %d is outside 1..32", n)
 		}
 		if big {
 			return Layout{Start: b*8 + 7 - bit, Bits: n, Big: true}, n, nil
@@ -204,7 +224,7 @@ func fieldLayout(f *Field) (Layout, int, error) {
 		size = 1
 	}
 	if size < 1 || size > 4 {
-		return Layout{}, 0, fmt.Errorf("size %d is outside 1..4 bytes", size)
+		return Layout{}, 0, keyErr("size", "size %d is outside 1..4 bytes", size)
 	}
 	return Layout{Start: b * 8, Bits: size * 8, Big: big}, size * 8, nil
 }
@@ -329,7 +349,7 @@ func expand(p *Profile, r *reporter) (*Expanded, bool) {
 			path := fmt.Sprintf("%s.field[%d]", fpath, ki)
 			lay, stride, err := fieldLayout(f)
 			if err != nil {
-				bad(path, ErrLayout, "see \"Fields\" in the README for byte, size, bit and bits", "%v", err)
+				bad(path+errKey(err), ErrLayout, "see \"Fields\" in the README for byte, size, bit and bits", "%v", err)
 				continue
 			}
 			if f.Float && (lay.Bits != 32) {
