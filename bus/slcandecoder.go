@@ -79,4 +79,3 @@ func (d *SLCANDecoder) Reset() { d.n, d.long = 0, false }
 
 // Stats returns the counters so far.
 func (d *SLCANDecoder) Stats() SLCANStats { return d.stats }
-

@@ -1,0 +1,6 @@
+//go:build !linux
+
+package bus
+
+// ListCANInterfaces returns nothing: SocketCAN exists only on Linux.
+func ListCANInterfaces() ([]CANInterface, error) { return nil, nil }
