@@ -162,8 +162,8 @@ func TestCodecLayout(t *testing.T) {
 	b := encodeAll(msgs)[0]
 	key := uint64(bus.KindCAN)<<42 | 2<<32 | 0x123
 	want := []byte{
-		1,    // version
-		2,    // count
+		1,          // version
+		2,          // count
 		0xd0, 0x0f, // base 1000 µs, zigzag varint 2000
 		1, // one key
 	}
