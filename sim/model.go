@@ -71,7 +71,7 @@ func (m *Model) CurrentLimits(dt float64) (lo, hi float64) {
 
 // CVCurrent is the charging current that brings the pack's terminal voltage
 // to vTarget at the end of a step of dt seconds, from the exact one-RC update
-// (the small change of OCV within one step is neglected). It may be negative
+// and the OCV's local slope. It may be negative
 // when the pack already stands above vTarget; the charger clamps it.
 func (m *Model) CVCurrent(vTarget, dt float64) float64 {
 	var num, den float64
@@ -79,7 +79,11 @@ func (m *Model) CVCurrent(vTarget, dt float64) float64 {
 		c := &m.Cells[k]
 		a := c.decay(dt)
 		num += c.OCV.At(c.z) + c.R1*a*c.iR1
-		den += c.R0 + c.R1*(1-a)
+		eta := 1.0
+		if c.Eta > 0 {
+			eta = c.Eta
+		}
+		den += c.R0 + c.R1*(1-a) + c.OCV.Slope(c.z)*eta*dt/(3600*c.CapacityAh)
 	}
 	if den <= 0 {
 		return 0

@@ -76,6 +76,16 @@ func (t *OCVTable) At(z float64) float64 {
 	return t.grid[k] + f*(t.grid[k+1]-t.grid[k])
 }
 
+// Slope is dOCV/dz at z, V per unit of state of charge (the slope of the
+// grid interval that holds z).
+func (t *OCVTable) Slope(z float64) float64 {
+	k := int(clamp(z, 0, 1) * ocvGrid)
+	if k >= ocvGrid {
+		k = ocvGrid - 1
+	}
+	return (t.grid[k+1] - t.grid[k]) * ocvGrid
+}
+
 // SOC inverts the table: the state of charge whose rest voltage is v, clamped
 // to 0..1. On a flat stretch it returns the lowest SOC with that voltage.
 func (t *OCVTable) SOC(v float64) float64 {

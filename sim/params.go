@@ -72,13 +72,16 @@ func buildModel(p *config.Profile, sc *Scenario, faults []Fault, seed uint64) (*
 			return nil, fmt.Errorf("scenario %s: [[cell]] n = %d but the pack has %d cells", sc.Name, cs.N, n)
 		}
 		c := &m.Cells[cs.N-1]
+		f := 1.0
 		if cs.CapacityFactor > 0 {
-			c.CapacityAh *= cs.CapacityFactor
+			f = cs.CapacityFactor
+			c.CapacityAh *= f
 		}
 		if cs.R0Factor > 0 {
 			c.R0 *= cs.R0Factor
 		}
-		c.SetSOC(z0 + cs.SOCOffsetPct/100)
+		// balanced at the top: as much room to full as the others
+		c.SetSOC(1 - (1-z0)/f + cs.SOCOffsetPct/100)
 	}
 	for _, f := range faults {
 		if f.Kind != FaultWeakCell {

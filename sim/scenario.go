@@ -36,7 +36,9 @@ type Scenario struct {
 // CellSpec makes one cell differ from the others.
 type CellSpec struct {
 	N int `toml:"n"` // cell number, from 1
-	// CapacityFactor multiplies the cell's capacity (0.96 = 4 % less).
+	// CapacityFactor multiplies the cell's capacity (0.96 = 4 % less). The
+	// pack starts balanced at the top, as a BMS leaves it: the cell has as
+	// much room to full as the others, so it holds less charge below full.
 	CapacityFactor float64 `toml:"capacity_factor"`
 	// R0Factor multiplies its series resistance.
 	R0Factor float64 `toml:"r0_factor"`

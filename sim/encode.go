@@ -1,0 +1,380 @@
+package sim
+
+import (
+	"fmt"
+	"math"
+	"strconv"
+	"strings"
+
+	"go.einride.tech/can"
+
+	"packwatch/bus"
+	"packwatch/config"
+	"packwatch/decode"
+)
+
+// Encoder is the inverse of the decoder: from a value for each of a compiled
+// profile's slots it builds the CAN frames and console lines that decode to
+// those values, using the profile's own field layouts and line patterns. It
+// also schedules them at the profile's periods. Not safe for concurrent use.
+type Encoder struct {
+	m      *decode.Map
+	frames []frameSched
+	lines  []lineSched
+}
+
+// encField is one expanded CAN field with the slot its value comes from.
+type encField struct {
+	f    *config.CANField
+	slot int
+}
+
+// frameMsg is one message of a frame entry: one ID and one mux value.
+type frameMsg struct {
+	src    uint16
+	id     uint32
+	ext    bool
+	hasMux bool
+	mux    int64
+	muxL   config.Layout
+	length uint8
+	fields []encField
+}
+
+// frameSched is one [[frame]] entry: its messages sent in turn, one every
+// period (so each binding comes every period × span, as the staleness rule
+// of the profile language expects).
+type frameSched struct {
+	msgs     []frameMsg
+	periodNs int64
+	next     int64 // data time of the next message, ns from the start
+	k        int   // which message is next
+}
+
+// lineInst is one line of a pattern: its fields for one index.
+type lineInst struct {
+	idx    int // the printed index (index group text), -1 for static lines
+	fields []lineFieldVal
+}
+
+type lineFieldVal struct {
+	f    *config.LineField
+	slot int
+}
+
+// lineSched is one [[line]]: every instance (each cell, say) each period.
+type lineSched struct {
+	src      uint16
+	gen      *lineGen
+	insts    []lineInst
+	periodNs int64
+	next     int64
+}
+
+// NewEncoder prepares the encoder for a compiled profile.
+func NewEncoder(m *decode.Map) (*Encoder, error) {
+	e := &Encoder{m: m}
+	p := m.Profile()
+	fields := m.Fields()
+	byEntry := map[int]int{} // frame entry index → e.frames index
+	type msgKey struct {
+		entry int
+		id    uint32
+		ext   bool
+		mux   int64
+	}
+	msgAt := map[msgKey][2]int{}
+	for i := range fields {
+		f := &fields[i]
+		entry, err := entryIndex(f.Path)
+		if err != nil {
+			return nil, err
+		}
+		fi, ok := byEntry[entry]
+		if !ok {
+			period := int64(1000)
+			if entry < len(p.Frames) && p.Frames[entry].PeriodMs > 0 {
+				period = p.Frames[entry].PeriodMs
+			}
+			fi = len(e.frames)
+			byEntry[entry] = fi
+			e.frames = append(e.frames, frameSched{periodNs: period * 1e6})
+		}
+		fs := &e.frames[fi]
+		k := msgKey{entry, f.ID, f.Extended, f.Mux}
+		at, ok := msgAt[k]
+		if !ok {
+			at = [2]int{fi, len(fs.msgs)}
+			msgAt[k] = at
+			fs.msgs = append(fs.msgs, frameMsg{src: uint16(f.Src), id: f.ID, ext: f.Extended,
+				hasMux: f.HasMux, mux: f.Mux, muxL: f.MuxLayout, length: 8})
+		}
+		slot, ok := m.SlotIndex(f.Name)
+		if !ok {
+			return nil, fmt.Errorf("encoder: field %s binds %s, which has no slot", f.Path, f.Name)
+		}
+		msg := &fs.msgs[at[1]]
+		msg.fields = append(msg.fields, encField{f: f, slot: slot})
+	}
+	// stagger the entries a little so that they do not all fall on one instant
+	for k := range e.frames {
+		e.frames[k].next = int64(k) * 1e6
+	}
+
+	for li, spec := range m.Lines() {
+		gen, err := newLineGen(spec.Re)
+		if err != nil {
+			return nil, fmt.Errorf("encoder: %s: %w", spec.Path, err)
+		}
+		ls := lineSched{src: uint16(spec.Src), gen: gen, periodNs: int64(1e9), next: int64(li)*1e6 + 5e5}
+		if li < len(p.Lines) && p.Lines[li].PeriodMs > 0 {
+			ls.periodNs = p.Lines[li].PeriodMs * 1e6
+		}
+		// the index group of the first templated field decides the instances
+		var tmpl *config.LineField
+		for fi := range spec.Fields {
+			if spec.Fields[fi].IndexGroup >= 0 {
+				tmpl = &spec.Fields[fi]
+				break
+			}
+		}
+		var idxs []int
+		if tmpl == nil {
+			idxs = []int{-1}
+		} else {
+			for _, name := range tmpl.Names {
+				b, err := config.ParseBinding(name)
+				if err != nil {
+					return nil, fmt.Errorf("encoder: %s: %w", spec.Path, err)
+				}
+				idxs = append(idxs, b.Index+tmpl.IndexBase-1)
+			}
+		}
+		for _, idx := range idxs {
+			inst := lineInst{idx: idx}
+			for fi := range spec.Fields {
+				f := &spec.Fields[fi]
+				name, ok := f.Resolve(idx)
+				if !ok {
+					continue
+				}
+				slot, ok := m.SlotIndex(name)
+				if !ok {
+					return nil, fmt.Errorf("encoder: %s binds %s, which has no slot", f.Path, name)
+				}
+				inst.fields = append(inst.fields, lineFieldVal{f: f, slot: slot})
+			}
+			if len(inst.fields) > 0 {
+				ls.insts = append(ls.insts, inst)
+			}
+		}
+		e.lines = append(e.lines, ls)
+	}
+	return e, nil
+}
+
+// entryIndex reads the frame entry's index from a field path "frame[2].field[0]".
+func entryIndex(path string) (int, error) {
+	rest, ok := strings.CutPrefix(path, "frame[")
+	if i := strings.IndexByte(rest, ']'); ok && i > 0 {
+		if n, err := strconv.Atoi(rest[:i]); err == nil {
+			return n, nil
+		}
+	}
+	return 0, fmt.Errorf("encoder: unexpected field path %q", path)
+}
+
+// Reading is what the encoder writes for one slot: a value in the binding's
+// unit, or "no reading" (the field's first invalid raw value; a field with
+// none keeps Value).
+type Reading struct {
+	Value   float64
+	Invalid bool
+	// Raw: Value is the field's raw code (enums such as bms.state), written
+	// as it is without scale and offset.
+	Raw bool
+}
+
+// Frame builds frame message fm from the readings (indexed by slot).
+func (e *Encoder) frame(fm *frameMsg, r []Reading) can.Frame {
+	var data [8]byte
+	if fm.hasMux {
+		decode.Insert(&data, fm.muxL, uint64(fm.mux))
+	}
+	for _, ef := range fm.fields {
+		decode.Insert(&data, ef.f.Layout, rawOf(ef.f, r[ef.slot]))
+	}
+	return can.Frame{ID: fm.id, IsExtended: fm.ext, Length: fm.length, Data: data}
+}
+
+// rawOf is the raw field value for a reading.
+func rawOf(f *config.CANField, rd Reading) uint64 {
+	if rd.Invalid && len(f.Invalid) > 0 {
+		return uint64(f.Invalid[0])
+	}
+	v := rd.Value
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		v = f.Offset
+	}
+	if rd.Raw {
+		v = v*f.Scale + f.Offset
+	}
+	raw := decode.RawFor(f, v)
+	// a rounded value that lands on an "invalid" code moves one count away
+	if !f.Float {
+		for _, inv := range f.Invalid {
+			if signExtend(raw, f) == inv {
+				if raw > 0 {
+					raw--
+				} else {
+					raw++
+				}
+			}
+		}
+	}
+	return raw
+}
+
+func signExtend(raw uint64, f *config.CANField) int64 {
+	bits := f.Layout.Bits
+	if f.Signed && bits < 64 && raw&(1<<(bits-1)) != 0 {
+		return int64(raw | ^(1<<bits - 1))
+	}
+	return int64(raw)
+}
+
+// lineText writes one line instance from the readings.
+func (e *Encoder) lineText(ls *lineSched, inst *lineInst, r []Reading) (string, error) {
+	fill := make(map[int]string, len(inst.fields)+1)
+	for _, lf := range inst.fields {
+		if lf.f.IndexGroup >= 0 {
+			fill[lf.f.IndexGroup] = strconv.Itoa(inst.idx)
+		}
+		rd := r[lf.slot]
+		num := (rd.Value - lf.f.Offset) / lf.f.Scale
+		if rd.Raw {
+			num = rd.Value
+		}
+		if rd.Invalid && len(lf.f.Invalid) > 0 {
+			num = float64(lf.f.Invalid[0])
+		}
+		if math.IsNaN(num) || math.IsInf(num, 0) {
+			num = 0
+		}
+		text, ok := formatFor(ls.gen, lf.f.Group, num)
+		if !ok {
+			return "", fmt.Errorf("%s: no text for %g fits group %d of %q", lf.f.Path, num, lf.f.Group, ls.gen.re.String())
+		}
+		fill[lf.f.Group] = text
+	}
+	return ls.gen.Generate(fill)
+}
+
+// formatFor writes num in the first form the capture group accepts: a whole
+// number, then with 1 to 6 decimals, then 0x hex; a negative number that the
+// group does not accept becomes 0.
+func formatFor(g *lineGen, group int, num float64) (string, bool) {
+	try := func(x float64) (string, bool) {
+		if s := strconv.FormatFloat(math.Round(x), 'f', 0, 64); g.Fits(group, s) {
+			return s, true
+		}
+		for d := 1; d <= 6; d++ {
+			if s := strconv.FormatFloat(x, 'f', d, 64); g.Fits(group, s) {
+				return s, true
+			}
+		}
+		if x >= 0 {
+			if s := "0x" + strconv.FormatUint(uint64(math.Round(x)), 16); g.Fits(group, s) {
+				return s, true
+			}
+			if s := "0x" + strings.ToUpper(strconv.FormatUint(uint64(math.Round(x)), 16)); g.Fits(group, s) {
+				return s, true
+			}
+		}
+		return "", false
+	}
+	if s, ok := try(num); ok {
+		return s, true
+	}
+	if num < 0 {
+		return try(0)
+	}
+	return "", false
+}
+
+// Next appends to dst every message due at or before t (ns from the start),
+// in time order per entry, from the readings (indexed by slot). The messages'
+// T is the time they were due plus start. A line the encoder cannot write
+// for a value is skipped and counted in *errs.
+func (e *Encoder) Next(dst []bus.Message, t, start int64, r []Reading, errs *int) []bus.Message {
+	for k := range e.frames {
+		fs := &e.frames[k]
+		for fs.next <= t && len(fs.msgs) > 0 {
+			fm := &fs.msgs[fs.k]
+			dst = append(dst, bus.Message{T: start + fs.next, Src: fm.src, Kind: bus.KindCAN, Frame: e.frame(fm, r)})
+			fs.k = (fs.k + 1) % len(fs.msgs)
+			fs.next += fs.periodNs
+		}
+	}
+	for k := range e.lines {
+		ls := &e.lines[k]
+		for ls.next <= t {
+			for i := range ls.insts {
+				text, err := e.lineText(ls, &ls.insts[i], r)
+				if err != nil {
+					if errs != nil {
+						*errs++
+					}
+					continue
+				}
+				dst = append(dst, bus.Message{T: start + ls.next, Src: ls.src, Kind: bus.KindLine, Text: text})
+			}
+			ls.next += ls.periodNs
+		}
+	}
+	return dst
+}
+
+// NextDue is the earliest time (ns from the start) any message is due.
+func (e *Encoder) NextDue() int64 {
+	due := int64(math.MaxInt64)
+	for k := range e.frames {
+		if len(e.frames[k].msgs) > 0 {
+			due = min(due, e.frames[k].next)
+		}
+	}
+	for k := range e.lines {
+		due = min(due, e.lines[k].next)
+	}
+	return due
+}
+
+// Frames lists every frame message the encoder knows (one per ID and mux
+// value) built from the readings, for tests and load generators.
+func (e *Encoder) Frames(r []Reading) []bus.Message {
+	var out []bus.Message
+	for k := range e.frames {
+		for i := range e.frames[k].msgs {
+			fm := &e.frames[k].msgs[i]
+			out = append(out, bus.Message{Src: fm.src, Kind: bus.KindCAN, Frame: e.frame(fm, r)})
+		}
+	}
+	return out
+}
+
+// Lines lists every console line the encoder writes (each instance of each
+// pattern) from the readings.
+func (e *Encoder) Lines(r []Reading) ([]bus.Message, error) {
+	var out []bus.Message
+	for k := range e.lines {
+		ls := &e.lines[k]
+		for i := range ls.insts {
+			text, err := e.lineText(ls, &ls.insts[i], r)
+			if err != nil {
+				return out, err
+			}
+			out = append(out, bus.Message{Src: ls.src, Kind: bus.KindLine, Text: text})
+		}
+	}
+	return out, nil
+}

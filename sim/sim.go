@@ -1,0 +1,585 @@
+package sim
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"sync"
+	"time"
+
+	"go.einride.tech/can"
+
+	"packwatch/bus"
+	"packwatch/decode"
+)
+
+// SpeedMax as Options.Speed runs the simulation as fast as it can.
+const SpeedMax = -1
+
+// Options configure a Sim. The zero value runs the profile's generic story
+// at the default speed, starting now.
+type Options struct {
+	// Speed is simulated seconds per wall second. 0 picks the default: the
+	// scenario's first pass shows in about ten minutes (see StoryLength).
+	// SpeedMax (any negative value) runs as fast as it can.
+	Speed float64
+	// Scenario is the story; nil means GenericScenario of the profile.
+	Scenario *Scenario
+	// Faults are put into the data on request.
+	Faults []Fault
+	// Start is the data time of the simulation's start; zero means the wall
+	// clock when New is called.
+	Start time.Time
+	// Seed makes the cells' manufacturing spread and garbage bytes
+	// repeatable; the same seed gives the same data.
+	Seed uint64
+	// Step is the physics time step in simulated time (default 100 ms).
+	Step time.Duration
+	// For ends Run (returning nil) after this much simulated time; 0 runs
+	// until the context ends.
+	For time.Duration
+}
+
+// defaultShowTime is how long the default speed takes to show a story.
+const defaultShowTime = 10 * time.Minute
+
+// batchMax is the largest batch Run delivers at once.
+const batchMax = 4096
+
+// Sim is a simulated pack speaking through a compiled profile. Run drives
+// it; the other methods are safe to call from any goroutine while it runs.
+type Sim struct {
+	dm   *decode.Map
+	opt  Options
+	sc   *Scenario
+	enc  *Encoder
+	rep  *reporter
+	step int64 // ns
+
+	mu       sync.Mutex
+	model    *Model
+	story    *story
+	t        int64 // simulated ns since the start (physics time)
+	through  int64 // messages are generated up to here, ns since the start
+	start    int64 // data time of the start, ns since the epoch
+	speed    float64
+	storyLen time.Duration
+	faults   []Fault
+	active   []bool
+	fs       faultState
+	forced   map[int]float64
+	dirty    bool
+	readings []Reading
+	chgV     float64
+	silent   map[uint16]bool
+	garbage  bool
+	garbageT int64
+	rng      *rand.Rand
+	encErrs  int
+	paused   bool
+	unknown  map[uint16]uint32 // per CAN source, an ID the profile does not know
+	hasCAN   map[uint16]bool
+
+	wake chan struct{}
+	adv  chan advance
+	buf  []bus.Message
+	// running guards against two Runs at once.
+	running bool
+}
+
+type advance struct {
+	d    int64
+	done chan struct{}
+}
+
+// New builds a simulator for a compiled profile.
+func New(m *decode.Map, opt Options) (*Sim, error) {
+	p := m.Profile()
+	sc := opt.Scenario
+	if sc == nil {
+		sc = GenericScenario(p)
+	}
+	if err := sc.Validate(); err != nil {
+		return nil, fmt.Errorf("scenario %s: %w", sc.Name, err)
+	}
+	model, err := buildModel(p, sc, opt.Faults, opt.Seed)
+	if err != nil {
+		return nil, err
+	}
+	enc, err := NewEncoder(m)
+	if err != nil {
+		return nil, err
+	}
+	s := &Sim{dm: m, opt: opt, sc: sc, enc: enc, rep: newReporter(m), model: model,
+		forced: map[int]float64{}, silent: map[uint16]bool{}, faults: opt.Faults,
+		active: make([]bool, len(opt.Faults)), dirty: true,
+		rng:  rand.New(rand.NewPCG(opt.Seed, 0x5eed)),
+		wake: make(chan struct{}, 1), adv: make(chan advance),
+		unknown: map[uint16]uint32{}, hasCAN: map[uint16]bool{},
+	}
+	s.fs = faultState{cellOffset: map[int]float64{}, sensorStop: map[int]bool{}}
+	s.step = int64(opt.Step)
+	if s.step <= 0 {
+		s.step = int64(100 * time.Millisecond)
+	}
+	for _, f := range opt.Faults {
+		switch f.Kind {
+		case FaultCellHigh, FaultWeakCell:
+			if f.N > p.Pack.Cells {
+				return nil, fmt.Errorf("fault %s: the pack has %d cells", f, p.Pack.Cells)
+			}
+		case FaultSensorStop, FaultHotSensor:
+			if f.N > p.Pack.Sensors || p.Pack.Sensors == 0 {
+				return nil, fmt.Errorf("fault %s: the pack has %d temperature sensors", f, p.Pack.Sensors)
+			}
+		case FaultSilent:
+			if f.Source != "" {
+				found := false
+				for _, src := range p.Sources {
+					found = found || src.Name == f.Source
+				}
+				if !found {
+					return nil, fmt.Errorf("fault %s: the profile has no source %q", f, f.Source)
+				}
+			}
+		}
+	}
+	for k := range p.Sources {
+		switch p.Sources[k].Kind {
+		case "serial-text":
+		default:
+			s.hasCAN[uint16(k)] = true
+			s.unknown[uint16(k)] = 0x7FF
+			for id := uint32(0x7FF); id > 0; id-- {
+				if !m.Known(k, id, false) {
+					s.unknown[uint16(k)] = id
+					break
+				}
+			}
+		}
+	}
+	s.start = opt.Start.UnixNano()
+	if opt.Start.IsZero() {
+		s.start = time.Now().UnixNano()
+	}
+	for _, st := range sc.Steps {
+		if st.Kind == "charge" {
+			s.chgV = float64(len(model.Cells)) * st.CellV
+			break
+		}
+	}
+	s.story = newStory(sc, model)
+	s.storyLen, err = s.measureStory()
+	if err != nil {
+		return nil, err
+	}
+	switch {
+	case opt.Speed < 0:
+		s.speed = math.Inf(1)
+	case opt.Speed == 0:
+		s.speed = math.Max(1, s.storyLen.Seconds()/defaultShowTime.Seconds())
+	default:
+		s.speed = opt.Speed
+	}
+	s.applyFaults() // those that act from the start
+	return s, nil
+}
+
+// maxStory bounds the dry run that measures a story.
+const maxStory = 7 * 24 * time.Hour
+
+// measureStory runs a copy of the scenario at 1 s steps until its first
+// pass ends.
+func (s *Sim) measureStory() (time.Duration, error) {
+	m, err := buildModel(s.dm.Profile(), s.sc, s.opt.Faults, s.opt.Seed)
+	if err != nil {
+		return 0, err
+	}
+	st := newStory(s.sc, m)
+	var t float64
+	for st.passes == 0 && t < maxStory.Seconds() {
+		st.tick(1)
+		t++
+	}
+	return time.Duration(t * float64(time.Second)), nil
+}
+
+// StoryLength is the simulated time of one pass through the scenario
+// (bounded by a week), measured by a dry run when the Sim was built.
+func (s *Sim) StoryLength() time.Duration { return s.storyLen }
+
+// Speed is the speed in use: simulated seconds per wall second (+Inf for
+// SpeedMax).
+func (s *Sim) Speed() float64 { return s.speed }
+
+// Scenario is the scenario in use.
+func (s *Sim) Scenario() *Scenario { return s.sc }
+
+// Start is the data time of the simulation's start.
+func (s *Sim) Start() time.Time { return time.Unix(0, s.start).UTC() }
+
+// EncodeErrors counts console lines the encoder could not write for a value
+// (the pattern's group does not accept it).
+func (s *Sim) EncodeErrors() int {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.encErrs
+}
+
+// Pause stops simulated time: Run delivers nothing until Resume (or
+// Advance). Data time does not move while paused.
+func (s *Sim) Pause() {
+	s.mu.Lock()
+	s.paused = true
+	s.mu.Unlock()
+	s.poke()
+}
+
+// Resume lets simulated time run again from where it stopped.
+func (s *Sim) Resume() {
+	s.mu.Lock()
+	s.paused = false
+	s.mu.Unlock()
+	s.poke()
+}
+
+func (s *Sim) poke() {
+	select {
+	case s.wake <- struct{}{}:
+	default:
+	}
+}
+
+// Advance makes Run simulate and deliver d of simulated time at once, paused
+// or not, and returns when the batches are delivered. It needs Run to be
+// running; it returns ctx.Err() if ctx ends first.
+func (s *Sim) Advance(ctx context.Context, d time.Duration) error {
+	a := advance{d: int64(d), done: make(chan struct{})}
+	select {
+	case s.adv <- a:
+	case <-ctx.Done():
+		return ctx.Err()
+	}
+	select {
+	case <-a.done:
+		return nil
+	case <-ctx.Done():
+		return ctx.Err()
+	}
+}
+
+// ForceCell makes cell n (from 1) report volts from now on, whatever the
+// model says, in every frame and line that carries it; NaN lets the model
+// speak again. Tests use it to push a cell past a limit.
+func (s *Sim) ForceCell(n int, volts float64) error {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	if n < 1 || n > len(s.model.Cells) {
+		return fmt.Errorf("force cell %d: the pack has cells 1 to %d", n, len(s.model.Cells))
+	}
+	if math.IsNaN(volts) {
+		delete(s.forced, n)
+	} else {
+		s.forced[n] = volts
+	}
+	s.dirty = true
+	return nil
+}
+
+// State is the simulated pack's true state at one instant.
+type State struct {
+	T         time.Time // data time
+	Elapsed   time.Duration
+	Phase     Phase
+	Step      int // index of the scenario step running
+	Pass      int // completed passes through the scenario
+	CurrentA  float64
+	PackV     float64
+	Contactor bool
+	CellV     []float64
+	SOC       []float64 // 0..1
+	TempC     []float64
+	ChargeAh  float64 // ∫I dt since the start, A·h (positive charging)
+	Paused    bool
+}
+
+// State returns the model's state now.
+func (s *Sim) State() State {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	m := s.model
+	st := State{T: time.Unix(0, s.start+s.t).UTC(), Elapsed: time.Duration(s.t), Phase: s.story.phase,
+		Step: s.story.step, Pass: s.story.passes, CurrentA: m.I, PackV: m.PackVoltage(m.I),
+		Contactor: m.Contactor, ChargeAh: m.ChargeAs / 3600, Paused: s.paused}
+	for k := range m.Cells {
+		st.CellV = append(st.CellV, m.Cells[k].Voltage(m.I))
+		st.SOC = append(st.SOC, m.Cells[k].SOC())
+	}
+	for k := range m.Sensors {
+		st.TempC = append(st.TempC, m.Sensors[k].T)
+	}
+	return st
+}
+
+// applyFaults activates faults whose time has come and updates drifting
+// ones. Called with mu held.
+func (s *Sim) applyFaults() {
+	p := s.dm.Profile()
+	for k, f := range s.faults {
+		after := int64(f.After)
+		if s.t < after {
+			continue
+		}
+		if f.Kind == FaultCellHigh {
+			n := max(f.N, 1)
+			s.fs.cellOffset[n] = math.Min(cellDriftMaxV, cellDriftVPerS*float64(s.t-after)/1e9)
+			s.dirty = true
+		}
+		if s.active[k] {
+			continue
+		}
+		s.active[k] = true
+		s.dirty = true
+		switch f.Kind {
+		case FaultSensorStop:
+			s.fs.sensorStop[max(f.N, 1)] = true
+		case FaultHotSensor:
+			n := f.N
+			if n == 0 {
+				n = 1
+				for _, sn := range p.Sensors {
+					if sn.Role == "busbar" {
+						n = sn.N
+						break
+					}
+				}
+			}
+			if n >= 1 && n <= len(s.model.Sensors) {
+				heatSensor(s.model, n-1, hotTarget(p), f.After == 0)
+			}
+		case FaultSilent:
+			src := 0
+			for i, sp := range p.Sources {
+				if sp.Name == f.Source {
+					src = i
+				}
+			}
+			s.silent[uint16(src)] = true
+		case FaultContactorStuck:
+			s.fs.stuck = true
+		case FaultGarbage:
+			s.garbage = true
+			s.garbageT = s.t
+		case FaultFlag:
+			s.fs.flag = true
+		}
+	}
+}
+
+// tick advances the physics by one step. Called with mu held.
+func (s *Sim) tick() {
+	s.story.tick(float64(s.step) / 1e9)
+	s.t += s.step
+	s.dirty = true
+	if len(s.faults) > 0 {
+		s.applyFaults()
+	}
+}
+
+// generate simulates up to until (ns from the start) and appends every
+// message due on the way to s.buf. Called with mu held.
+func (s *Sim) generate(until int64) {
+	for {
+		due := s.enc.NextDue()
+		if due > until {
+			break
+		}
+		for s.t+s.step <= due {
+			s.tick()
+		}
+		if s.dirty {
+			s.readings = s.rep.update(s.model, s.story.phase, &s.fs, s.forced, s.chgV)
+			s.dirty = false
+		}
+		n := len(s.buf)
+		s.buf = s.enc.Next(s.buf, due, s.start, s.readings, &s.encErrs)
+		if len(s.silent) > 0 {
+			kept := s.buf[:n]
+			for _, msg := range s.buf[n:] {
+				if !s.silent[msg.Src] {
+					kept = append(kept, msg)
+				}
+			}
+			s.buf = kept
+		}
+	}
+	for s.t+s.step <= until {
+		s.tick()
+	}
+	s.through = max(s.through, until)
+	if s.garbage {
+		for s.garbageT+int64(time.Second) <= until {
+			s.garbageT += int64(time.Second)
+			s.appendGarbage(s.garbageT)
+		}
+	}
+}
+
+// appendGarbage adds malformed data on every source at data time t (ns
+// from the start): a frame with an ID the profile does not know, a frame too
+// short for the fields of a known one, a console line of junk.
+func (s *Sim) appendGarbage(t int64) {
+	p := s.dm.Profile()
+	for k := range p.Sources {
+		src := uint16(k)
+		if s.silent[src] {
+			continue
+		}
+		if s.hasCAN[src] {
+			var d [8]byte
+			for i := range d {
+				d[i] = byte(s.rng.UintN(256))
+			}
+			s.buf = append(s.buf, bus.Message{T: s.start + t, Src: src, Kind: bus.KindCAN,
+				Frame: can.Frame{ID: s.unknown[src], Length: uint8(s.rng.UintN(9)), Data: d}})
+			for _, f := range s.dm.Fields() {
+				if f.Src == k {
+					s.buf = append(s.buf, bus.Message{T: s.start + t, Src: src, Kind: bus.KindCAN,
+						Frame: can.Frame{ID: f.ID, IsExtended: f.Extended, Length: 0}})
+					break
+				}
+			}
+			continue
+		}
+		junk := make([]byte, 8+s.rng.IntN(24))
+		for i := range junk {
+			junk[i] = byte(0x21 + s.rng.IntN(94))
+		}
+		s.buf = append(s.buf, bus.Message{T: s.start + t, Src: src, Kind: bus.KindLine, Text: string(junk)})
+	}
+}
+
+// Run simulates and delivers batches to sink until ctx ends (returning nil)
+// or Options.For of simulated time has passed (returning nil). Batches are
+// paced in wall time by the speed; data time is simulated time. Run is
+// called from the caller's goroutine and starts none of its own; it must
+// not run twice at once.
+func (s *Sim) Run(ctx context.Context, sink bus.Sink) error {
+	s.mu.Lock()
+	if s.running {
+		s.mu.Unlock()
+		return fmt.Errorf("sim: Run is already running")
+	}
+	s.running = true
+	s.mu.Unlock()
+	defer func() {
+		s.mu.Lock()
+		s.running = false
+		s.mu.Unlock()
+	}()
+
+	p := s.dm.Profile()
+	for k := range p.Sources {
+		sink.Status(bus.Status{Src: uint16(k), T: s.start + s.t, State: bus.StateConnected, Reason: "simulated (" + s.sc.Name + ")"})
+	}
+	defer func() {
+		for k := range p.Sources {
+			sink.Status(bus.Status{Src: uint16(k), T: s.start + s.t, State: bus.StateStopped, Reason: "simulation ended"})
+		}
+	}()
+
+	end := int64(math.MaxInt64)
+	if s.opt.For > 0 {
+		end = int64(s.opt.For)
+	}
+	const frame = 20 * time.Millisecond
+	var timer *time.Timer
+	if !math.IsInf(s.speed, 1) {
+		timer = time.NewTimer(frame)
+		defer timer.Stop()
+	}
+	wallAnchor, simAnchor := time.Now(), s.now()
+	wasPaused := false
+	for {
+		s.mu.Lock()
+		paused, through := s.paused, s.through
+		s.mu.Unlock()
+		if through >= end {
+			return nil
+		}
+		if paused {
+			wasPaused = true
+			select {
+			case <-ctx.Done():
+				return nil
+			case a := <-s.adv:
+				s.runAdvance(a, sink, end)
+			case <-s.wake:
+			}
+			continue
+		}
+		if wasPaused {
+			wasPaused = false
+			wallAnchor, simAnchor = time.Now(), through
+		}
+		if timer == nil { // as fast as it can
+			select {
+			case <-ctx.Done():
+				return nil
+			case a := <-s.adv:
+				s.runAdvance(a, sink, end)
+				continue
+			default:
+			}
+			s.mu.Lock()
+			for len(s.buf) < batchMax && s.through < end {
+				s.generate(min(end, s.through+int64(time.Second)))
+			}
+			s.mu.Unlock()
+			s.flush(sink)
+			continue
+		}
+		select {
+		case <-ctx.Done():
+			return nil
+		case a := <-s.adv:
+			s.runAdvance(a, sink, end)
+			simAnchor += a.d
+			continue
+		case <-s.wake:
+			continue
+		case <-timer.C:
+			timer.Reset(frame)
+		}
+		target := simAnchor + int64(float64(time.Since(wallAnchor))*s.speed)
+		s.mu.Lock()
+		s.generate(min(target, end))
+		s.mu.Unlock()
+		s.flush(sink)
+	}
+}
+
+func (s *Sim) now() int64 {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.through
+}
+
+// runAdvance serves one Advance request.
+func (s *Sim) runAdvance(a advance, sink bus.Sink, end int64) {
+	s.mu.Lock()
+	s.generate(min(s.through+a.d, end))
+	s.mu.Unlock()
+	s.flush(sink)
+	close(a.done)
+}
+
+// flush delivers s.buf in batches of at most batchMax and empties it. The
+// buffer belongs to Run's goroutine: generate and flush both run there.
+func (s *Sim) flush(sink bus.Sink) {
+	for i := 0; i < len(s.buf); i += batchMax {
+		sink.Deliver(s.buf[i:min(len(s.buf), i+batchMax)])
+	}
+	s.buf = s.buf[:0]
+}

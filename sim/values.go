@@ -1,0 +1,174 @@
+package sim
+
+import (
+	"math"
+	"strings"
+
+	"packwatch/config"
+	"packwatch/decode"
+)
+
+// reporter turns the model's state into a reading for every slot of the
+// compiled profile, with faults and forced values applied: what a BMS and a
+// console would report about the simulated pack.
+type reporter struct {
+	slots []decode.Slot
+	prof  *config.Profile
+	// code maps each enum slot's phase and fault names to raw codes.
+	stateCodes map[int][4]int64 // slot → codes for idle, charging, discharging, fault
+	readings   []Reading
+	// frozen holds values kept by stopped sensors and a stuck contactor.
+	frozen map[int]float64
+}
+
+func newReporter(m *decode.Map) *reporter {
+	r := &reporter{slots: m.Slots(), prof: m.Profile(), stateCodes: map[int][4]int64{}, frozen: map[int]float64{}}
+	r.readings = make([]Reading, len(r.slots))
+	for i, s := range r.slots {
+		if s.Bind.Kind != config.BindBMSState {
+			continue
+		}
+		codes := [4]int64{0, 1, 2, 3}
+		for code, name := range s.Enum {
+			n := strings.ToLower(name)
+			switch {
+			case strings.Contains(n, "fault"), strings.Contains(n, "error"):
+				codes[3] = code
+			case strings.HasPrefix(n, "discharg"):
+				codes[2] = code
+			case strings.HasPrefix(n, "charg"):
+				codes[1] = code
+			case n == "idle", n == "rest", n == "standby", n == "ready":
+				codes[0] = code
+			}
+		}
+		r.stateCodes[i] = codes
+	}
+	return r
+}
+
+// faultState is what the active faults do to the readings right now.
+type faultState struct {
+	cellOffset map[int]float64 // cell index from 1 → volts added
+	sensorStop map[int]bool    // sensor index from 1
+	stuck      bool
+	flag       bool
+}
+
+// update fills r.readings from the model. forced maps a cell (from 1) to a
+// reported voltage that overrides the model's.
+func (r *reporter) update(m *Model, ph Phase, fs *faultState, forced map[int]float64, chgV float64) []Reading {
+	packV := m.PackVoltage(m.I)
+	for i := range r.slots {
+		s := &r.slots[i]
+		v, inv := r.value(s, i, m, ph, fs, forced, packV, chgV)
+		r.readings[i] = Reading{Value: v, Invalid: inv, Raw: s.Bind.Kind == config.BindBMSState}
+	}
+	return r.readings
+}
+
+func b2f(b bool) float64 {
+	if b {
+		return 1
+	}
+	return 0
+}
+
+func (r *reporter) value(s *decode.Slot, slot int, m *Model, ph Phase, fs *faultState, forced map[int]float64, packV, chgV float64) (float64, bool) {
+	b := s.Bind
+	n := b.Index
+	switch b.Kind {
+	case config.BindCellVoltage:
+		if n < 1 || n > len(m.Cells) {
+			return 0, true
+		}
+		if v, ok := forced[n]; ok {
+			return v, false
+		}
+		return m.Cells[n-1].Voltage(m.I) + fs.cellOffset[n], false
+	case config.BindCellBalancing:
+		return 0, false
+	case config.BindTemp:
+		if n < 1 || n > len(m.Sensors) {
+			return 0, true
+		}
+		if fs.sensorStop[n] {
+			if _, ok := r.frozen[slot]; !ok {
+				r.frozen[slot] = m.Sensors[n-1].T
+			}
+			return r.frozen[slot], true
+		}
+		return m.Sensors[n-1].T, false
+	case config.BindPackCurrent:
+		return m.I, false
+	case config.BindStringCurrent:
+		return m.I, false
+	case config.BindPackVoltage:
+		return packV, false
+	case config.BindLinkVoltage:
+		if m.Contactor {
+			return packV, false
+		}
+		return 0, false
+	case config.BindPackSOC:
+		return 100 * m.MeanSOC(), false
+	case config.BindPackSOH:
+		var q float64
+		for k := range m.Cells {
+			q += m.Cells[k].CapacityAh
+		}
+		return math.Min(100, 100*q/float64(len(m.Cells))/r.prof.Pack.CapacityAh), false
+	case config.BindPackSerial:
+		return 1, false
+	case config.BindIsolation:
+		return 5000, false
+	case config.BindContactor:
+		closed := b2f(m.Contactor)
+		if fs.stuck {
+			if _, ok := r.frozen[slot]; !ok {
+				r.frozen[slot] = closed
+			}
+			return r.frozen[slot], false
+		}
+		return closed, false
+	case config.BindChargeEnable:
+		return b2f(ph == PhaseCharging), false
+	case config.BindInterlock:
+		return 1, false
+	case config.BindBMSState:
+		codes := r.stateCodes[slot]
+		code := codes[ph]
+		if fs.flag {
+			code = codes[3]
+		}
+		return float64(code), false // a raw code (Reading.Raw)
+	case config.BindBMS:
+		switch b.Name {
+		case "charge_limit_a":
+			if l := r.prof.Limits.ChargeCurrent; l != nil {
+				return *l, false
+			}
+			return 0.5 * r.prof.Pack.CapacityAh, false
+		case "discharge_limit_a":
+			if l := r.prof.Limits.DischargeCurrent; l != nil {
+				return *l, false
+			}
+			return 2 * r.prof.Pack.CapacityAh, false
+		case "charge_voltage_v":
+			return chgV, false
+		case "supply_voltage":
+			return 12.0, false
+		}
+	case config.BindCharger:
+		if ph != PhaseCharging {
+			return 0, false
+		}
+		if b.Name == "voltage" {
+			return packV, false
+		}
+		return m.I, false
+	case config.BindFault:
+		return b2f(fs.flag), false
+	}
+	return 0, false
+}
