@@ -2,7 +2,6 @@ package pack
 
 import (
 	"fmt"
-	"math"
 	"strings"
 
 	"packwatch/config"
