@@ -73,6 +73,9 @@ func (g *lineGen) write(b *strings.Builder, t *syntax.Regexp, fill map[int]strin
 	switch t.Op {
 	case syntax.OpLiteral:
 		for _, r := range t.Rune {
+			if t.Flags&syntax.FoldCase != 0 {
+				r = unicode.ToLower(r)
+			}
 			b.WriteRune(r)
 		}
 	case syntax.OpCharClass:
