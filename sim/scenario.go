@@ -2,6 +2,7 @@ package sim
 
 import (
 	"bytes"
+	"errors"
 	"fmt"
 	"math"
 	"os"
@@ -132,6 +133,20 @@ func ParseScenario(name string, b []byte) (*Scenario, error) {
 	dec := toml.NewDecoder(bytes.NewReader(b))
 	dec.DisallowUnknownFields()
 	if err := dec.Decode(&sc); err != nil {
+		var sm *toml.StrictMissingError
+		if errors.As(err, &sm) && len(sm.Errors) > 0 {
+			var keys []string
+			for _, e := range sm.Errors {
+				row, col := e.Position()
+				keys = append(keys, fmt.Sprintf("%s (line %d, column %d)", strings.Join(e.Key(), "."), row, col))
+			}
+			return nil, fmt.Errorf("scenario %s: unknown key %s", name, strings.Join(keys, ", "))
+		}
+		var de *toml.DecodeError
+		if errors.As(err, &de) {
+			row, col := de.Position()
+			return nil, fmt.Errorf("scenario %s:%d:%d: %w", name, row, col, err)
+		}
 		return nil, fmt.Errorf("scenario %s: %w", name, err)
 	}
 	if sc.Name == "" {
