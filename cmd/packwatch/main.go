@@ -28,6 +28,8 @@ func commands() map[string]command {
 		"validate": {"check a profile and list what it covers", runValidate},
 		"decode":   {"decode a capture (or a live source) to JSON lines", runDecode},
 		"version":  {"print the version", runVersion},
+		"serve":    {"show packs live from their profiles' sources on a local web page", runServe},
+		"demo":     {"a simulated pack on the dashboard, no hardware needed", runDemo},
 		"help":     {"list the commands", nil},
 	}
 }
