@@ -1,0 +1,195 @@
+package main
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"io"
+	"log/slog"
+	"net/http"
+	"os"
+	"path/filepath"
+	"regexp"
+	"strings"
+	"sync"
+	"testing"
+	"time"
+
+	"packwatch/config"
+	"packwatch/decode"
+	"packwatch/pack"
+)
+
+func mustLoad(t *testing.T, path string) (*config.Profile, *decode.Map) {
+	t.Helper()
+	p, m, err := loadProfile(path, io.Discard)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return p, m
+}
+
+var quiet = slog.New(slog.DiscardHandler)
+
+// TestSessionSharedDevice: a device named by two profiles is opened once and
+// mapped to each pack's own source.
+func TestSessionSharedDevice(t *testing.T) {
+	dir := t.TempDir()
+	ex, err := os.ReadFile("../../config/examples/buoy-winch.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	a := filepath.Join(dir, "a.toml")
+	b := filepath.Join(dir, "b.toml")
+	os.WriteFile(a, ex, 0o644)
+	// b: the same CAN interface, a different console
+	os.WriteFile(b, bytes.Replace(ex, []byte(`"/dev/ttyUSB0"`), []byte(`"/dev/ttyUSB1"`), 1), 0o644)
+	pa, ma := mustLoad(t, a)
+	pb, mb := mustLoad(t, b)
+	s, err := newSession([]*config.Profile{pa, pb}, []*decode.Map{ma, mb}, "live", nil, quiet)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(s.devices) != 3 {
+		t.Fatalf("devices = %d, want 3 (can0 shared, two consoles)", len(s.devices))
+	}
+	if got := s.packs[1].srcMap; got[0] != 0 || got[1] != -1 || got[2] != 1 {
+		t.Errorf("pack b srcMap = %v, want [0 -1 1]", got)
+	}
+	if s.packs[0].id == s.packs[1].id {
+		t.Errorf("pack ids collide: %s", s.packs[0].id)
+	}
+}
+
+// TestReload: a changed profile is swapped in; an invalid one leaves the old
+// one running and shows its FILE:LINE:COL error in the snapshot.
+func TestReload(t *testing.T) {
+	dir := t.TempDir()
+	ex, _ := os.ReadFile("../../config/examples/buoy-winch.toml")
+	path := filepath.Join(dir, "pack.toml")
+	os.WriteFile(path, ex, 0o644)
+	p, m := mustLoad(t, path)
+	s, err := newSession([]*config.Profile{p}, []*decode.Map{m}, "live", nil, quiet)
+	if err != nil {
+		t.Fatal(err)
+	}
+	r := newReloader(s, quiet)
+	r.debounce = 10 * time.Millisecond
+	done := make(chan error, 4)
+	r.reloaded = func(_ string, err error) { done <- err }
+	ctx, cancel := context.WithCancel(context.Background())
+	defer func() { cancel(); r.wait() }()
+	ready := make(chan struct{})
+	go func() { close(ready); r.run(ctx) }()
+	<-ready
+
+	wait := func() error {
+		t.Helper()
+		for {
+			select {
+			case err := <-done:
+				return err
+			case <-time.After(10 * time.Second):
+				// keep touching the file: the watcher may have been added after the first write
+				os.Chtimes(path, time.Now(), time.Now())
+			}
+		}
+	}
+	// a valid change: a new name
+	writeAtomic(t, path, bytes.Replace(ex, []byte(`name = "Buoy winch pack"`), []byte(`name = "Renamed pack"`), 1))
+	if err := wait(); err != nil {
+		t.Fatalf("valid reload: %v", err)
+	}
+	if got := s.eng.Snapshot(time.Now()).Packs[0].Name; got != "Renamed pack" {
+		t.Errorf("name after reload = %q", got)
+	}
+	// an invalid change: a typo on line 6
+	bad := bytes.Replace(ex, []byte("cells = 12"), []byte("celss = 12"), 1)
+	writeAtomic(t, path, bad)
+	if err := wait(); err == nil {
+		t.Fatal("invalid profile reloaded without error")
+	}
+	snap := s.eng.Snapshot(time.Now()).Packs[0]
+	if !regexp.MustCompile(`pack\.toml:6:1: unknown key`).MatchString(snap.ProfileError) {
+		t.Errorf("profile error = %q", snap.ProfileError)
+	}
+	if snap.Name != "Renamed pack" {
+		t.Errorf("old profile not kept: %q", snap.Name)
+	}
+}
+
+// writeAtomic saves like an editor: write a temporary file, rename it over.
+func writeAtomic(t *testing.T, path string, data []byte) {
+	t.Helper()
+	tmp := path + ".tmp"
+	if err := os.WriteFile(tmp, data, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.Rename(tmp, path); err != nil {
+		t.Fatal(err)
+	}
+}
+
+// syncBuffer is a bytes.Buffer safe for the server's banner goroutine.
+type syncBuffer struct {
+	mu sync.Mutex
+	b  bytes.Buffer
+}
+
+func (s *syncBuffer) Write(p []byte) (int, error) {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.Write(p)
+}
+
+func (s *syncBuffer) String() string {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.b.String()
+}
+
+// TestDemo runs the demo command end to end: the simulator drives the real
+// decoder and engine, the page's API shows every cell, and Ctrl-C (context
+// cancel) stops it cleanly with exit 0.
+func TestDemo(t *testing.T) {
+	ctx, cancel := context.WithCancel(context.Background())
+	defer cancel()
+	var out, errb syncBuffer
+	code := make(chan int, 1)
+	go func() { code <- run(ctx, []string{"demo", "--addr", "127.0.0.1:0", "--speed", "50"}, &out, &errb) }()
+	url := ""
+	re := regexp.MustCompile(`http://127\.0\.0\.1:\d+/`)
+	deadline := time.Now().Add(30 * time.Second)
+	var snap pack.Snapshot
+	for time.Now().Before(deadline) {
+		if url == "" {
+			url = re.FindString(out.String())
+			time.Sleep(20 * time.Millisecond)
+			continue
+		}
+		resp, err := http.Get(url + "api/state")
+		if err == nil {
+			json.NewDecoder(resp.Body).Decode(&snap)
+			resp.Body.Close()
+			if len(snap.Packs) == 1 && snap.Packs[0].CellStats.Reporting == 12 {
+				break
+			}
+		}
+		time.Sleep(20 * time.Millisecond)
+	}
+	if len(snap.Packs) != 1 || snap.Packs[0].CellStats.Reporting != 12 {
+		t.Fatalf("demo never showed 12 cells; stdout %q stderr %q", out.String(), errb.String())
+	}
+	if snap.Mode != "simulated" || !strings.Contains(out.String(), "SIMULATED") {
+		t.Errorf("demo not marked simulated: mode %q", snap.Mode)
+	}
+	cancel()
+	select {
+	case c := <-code:
+		if c != 0 {
+			t.Errorf("exit %d: %s", c, errb.String())
+		}
+	case <-time.After(15 * time.Second):
+		t.Fatal("demo did not stop after cancel")
+	}
+}
