@@ -23,10 +23,27 @@ type Encoder struct {
 	lines  []lineSched
 }
 
-// encField is one expanded CAN field with the slot its value comes from.
+// encField is one expanded CAN field with the slot its value comes from and
+// the bounds of its raw value.
 type encField struct {
-	f    *config.CANField
-	slot int
+	f      *config.CANField
+	slot   int
+	lo, hi float64 // raw bounds at the field's width
+	mask   uint64
+}
+
+func newEncField(f *config.CANField, slot int) encField {
+	bits := f.Layout.Bits
+	ef := encField{f: f, slot: slot, mask: math.MaxUint64}
+	if bits < 64 {
+		ef.mask = 1<<uint(bits) - 1
+	}
+	if f.Signed {
+		ef.lo, ef.hi = -math.Ldexp(1, bits-1), math.Ldexp(1, bits-1)-1
+	} else {
+		ef.lo, ef.hi = 0, math.Ldexp(1, bits)-1
+	}
+	return ef
 }
 
 // frameMsg is one message of a frame entry: one ID and one mux value.
@@ -114,7 +131,7 @@ func NewEncoder(m *decode.Map) (*Encoder, error) {
 			return nil, fmt.Errorf("encoder: field %s binds %s, which has no slot", f.Path, f.Name)
 		}
 		msg := &fs.msgs[at[1]]
-		msg.fields = append(msg.fields, encField{f: f, slot: slot})
+		msg.fields = append(msg.fields, newEncField(f, slot))
 	}
 	// stagger the entries a little so that they do not all fall on one instant
 	for k := range e.frames {
@@ -201,25 +218,40 @@ func (e *Encoder) frame(fm *frameMsg, r []Reading) can.Frame {
 	if fm.hasMux {
 		decode.Insert(&data, fm.muxL, uint64(fm.mux))
 	}
-	for _, ef := range fm.fields {
-		decode.Insert(&data, ef.f.Layout, rawOf(ef.f, r[ef.slot]))
+	for i := range fm.fields {
+		ef := &fm.fields[i]
+		decode.Insert(&data, ef.f.Layout, ef.raw(r[ef.slot]))
 	}
 	return can.Frame{ID: fm.id, IsExtended: fm.ext, Length: fm.length, Data: data}
 }
 
-// rawOf is the raw field value for a reading.
-func rawOf(f *config.CANField, rd Reading) uint64 {
+// raw is the raw field value for a reading: the inverse of the decoder's
+// raw × scale + offset, rounded to the nearest count and clamped to the
+// field's width (as decode.RawFor, with the bounds computed once).
+func (ef *encField) raw(rd Reading) uint64 {
+	f := ef.f
 	if rd.Invalid && len(f.Invalid) > 0 {
-		return uint64(f.Invalid[0])
+		return uint64(f.Invalid[0]) & ef.mask
 	}
-	v := rd.Value
-	if math.IsNaN(v) || math.IsInf(v, 0) {
-		v = f.Offset
+	x := rd.Value
+	if !rd.Raw {
+		x = (x - f.Offset) / f.Scale
 	}
-	if rd.Raw {
-		v = v*f.Scale + f.Offset
+	if math.IsNaN(x) || math.IsInf(x, 0) {
+		x = 0
 	}
-	raw := decode.RawFor(f, v)
+	var raw uint64
+	if f.Float {
+		raw = uint64(math.Float32bits(float32(x)))
+	} else {
+		n := math.Round(x)
+		if n < ef.lo {
+			n = ef.lo
+		} else if n > ef.hi {
+			n = ef.hi
+		}
+		raw = uint64(int64(n)) & ef.mask
+	}
 	// a rounded value that lands on an "invalid" code moves one count away
 	if !f.Float {
 		for _, inv := range f.Invalid {

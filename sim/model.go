@@ -51,8 +51,12 @@ func (m *Model) CellVoltageRange(i float64) (lo, hi float64) {
 	lo, hi = math.Inf(1), math.Inf(-1)
 	for k := range m.Cells {
 		v := m.Cells[k].Voltage(i)
-		lo = math.Min(lo, v)
-		hi = math.Max(hi, v)
+		if v < lo {
+			lo = v
+		}
+		if v > hi {
+			hi = v
+		}
 	}
 	return lo, hi
 }
@@ -63,8 +67,12 @@ func (m *Model) CurrentLimits(dt float64) (lo, hi float64) {
 	lo, hi = math.Inf(-1), math.Inf(1)
 	for k := range m.Cells {
 		l, h := m.Cells[k].CurrentLimits(dt)
-		lo = math.Max(lo, l)
-		hi = math.Min(hi, h)
+		if l > lo {
+			lo = l
+		}
+		if h < hi {
+			hi = h
+		}
 	}
 	return lo, hi
 }

@@ -65,6 +65,7 @@ type Sim struct {
 	start    int64 // data time of the start, ns since the epoch
 	speed    float64
 	storyLen time.Duration
+	lenOnce  sync.Once
 	faults   []Fault
 	active   []bool
 	fs       faultState
@@ -170,15 +171,11 @@ func New(m *decode.Map, opt Options) (*Sim, error) {
 		}
 	}
 	s.story = newStory(sc, model)
-	s.storyLen, err = s.measureStory()
-	if err != nil {
-		return nil, err
-	}
 	switch {
 	case opt.Speed < 0:
 		s.speed = math.Inf(1)
 	case opt.Speed == 0:
-		s.speed = math.Max(1, s.storyLen.Seconds()/defaultShowTime.Seconds())
+		s.speed = math.Max(1, s.StoryLength().Seconds()/defaultShowTime.Seconds())
 	default:
 		s.speed = opt.Speed
 	}
@@ -189,25 +186,25 @@ func New(m *decode.Map, opt Options) (*Sim, error) {
 // maxStory bounds the dry run that measures a story.
 const maxStory = 7 * 24 * time.Hour
 
-// measureStory runs a copy of the scenario at 1 s steps until its first
-// pass ends.
-func (s *Sim) measureStory() (time.Duration, error) {
-	m, err := buildModel(s.dm.Profile(), s.sc, s.opt.Faults, s.opt.Seed)
-	if err != nil {
-		return 0, err
-	}
-	st := newStory(s.sc, m)
-	var t float64
-	for st.passes == 0 && t < maxStory.Seconds() {
-		st.tick(1)
-		t++
-	}
-	return time.Duration(t * float64(time.Second)), nil
-}
-
 // StoryLength is the simulated time of one pass through the scenario
-// (bounded by a week), measured by a dry run when the Sim was built.
-func (s *Sim) StoryLength() time.Duration { return s.storyLen }
+// (bounded by a week, and by the first pass when the scenario holds),
+// measured once by a dry run of a copy of the model at 1 s steps.
+func (s *Sim) StoryLength() time.Duration {
+	s.lenOnce.Do(func() {
+		m, err := buildModel(s.dm.Profile(), s.sc, s.opt.Faults, s.opt.Seed)
+		if err != nil { // New built the same model without error
+			return
+		}
+		st := newStory(s.sc, m)
+		var t float64
+		for st.passes == 0 && t < maxStory.Seconds() {
+			st.tick(1)
+			t++
+		}
+		s.storyLen = time.Duration(t * float64(time.Second))
+	})
+	return s.storyLen
+}
 
 // Speed is the speed in use: simulated seconds per wall second (+Inf for
 // SpeedMax).
