@@ -1,0 +1,198 @@
+package check
+
+import (
+	"context"
+	"database/sql"
+	"errors"
+	"math"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"packwatch/config"
+	"packwatch/pack"
+)
+
+func testProfile() *config.Profile {
+	return &config.Profile{Pack: config.Pack{Name: "Test pod", Cells: 4, CapacityAh: 50},
+		File: "testdata/pod.toml", Hash: strings.Repeat("ab", 32)}
+}
+
+func testRecord(t *testing.T, mod func(i int, p *pack.PackSnapshot), now time.Time) *Record {
+	t.Helper()
+	s := testSettings()
+	s.Manual = []string{"connector latched and locked"}
+	return NewRecord(window(mod), Raw{Format: RawFormat, Messages: 1000}, s, Inputs{Profile: testProfile(), PackID: "pod",
+		Operator: "A. Operator", PackSerial: "POD-7", Data: DataInfo{Mode: ModeCapture, Source: "capture x"},
+		Confirmed: []bool{true}, Now: now})
+}
+
+func TestRecordFields(t *testing.T) {
+	now := time.Unix(0, t0+10e9).Add(3 * time.Hour)
+	r := testRecord(t, nil, now)
+	if r.Verdict != VerdictGo {
+		t.Fatalf("verdict %s: %+v", r.Verdict, Sorted(r.Rules)[0])
+	}
+	if r.Pack.Key != "serial:POD-7" || r.Pack.SerialFrom != "operator" {
+		t.Errorf("pack %+v", r.Pack)
+	}
+	// A capture checked 3 h after its end says so (age in seconds: 3 × 3600).
+	if r.Data.AgeS == nil || *r.Data.AgeS != 10800 || !strings.Contains(r.Data.Notice, "FROM A CAPTURE, NOT LIVE: the data is 3.0 h old") {
+		t.Errorf("data %+v notice %q", r.Data.AgeS, r.Data.Notice)
+	}
+	if r.Data.Seconds != 10 || r.Time != now.UTC().Format(time.RFC3339) {
+		t.Errorf("seconds %v time %s", r.Data.Seconds, r.Time)
+	}
+	if r.Measured.SpreadV == nil || math.Abs(float64(*r.Measured.SpreadV)-0.021) > 1e-9 {
+		t.Errorf("spread %v", r.Measured.SpreadV)
+	}
+	// A bms-reported serial wins over the operator's.
+	r2 := testRecord(t, func(i int, p *pack.PackSnapshot) { p.Serial = "4711" }, now)
+	if r2.Pack.Serial != "4711" || r2.Pack.SerialFrom != "bms" {
+		t.Errorf("pack %+v", r2.Pack)
+	}
+	// Unticking the manual item makes it a no-go.
+	if err := r.Confirm(nil, "B. Other", "note"); err != nil || r.Verdict != VerdictNoGo {
+		t.Errorf("confirm: %v, verdict %s", err, r.Verdict)
+	}
+	// No message at all: could not check.
+	r3 := NewRecord(Window{From: t0, To: t0 + 10e9}, Raw{}, testSettings(), Inputs{Profile: testProfile(), Now: now, Data: DataInfo{Mode: ModeLive}})
+	if r3.Verdict != VerdictCouldNotCheck || r3.Data.Notice != "" {
+		t.Errorf("empty window: %s %q", r3.Verdict, r3.Data.Notice)
+	}
+}
+
+// Check values from the FreedomCAR Battery Test Manual (DOE/ID-11069, INL
+// 2003; details from memory, see REFERENCES.md): 3.700 → 3.550 V at a 50 A
+// discharge pulse is 3.00 mΩ; a 37.5 A regen pulse 3.690 → 3.795 V is 2.80 mΩ.
+func TestResistanceHPPC(t *testing.T) {
+	mk := func(i1, v1, i2, v2 float64) []Sample {
+		return []Sample{{T: t0, Pack: pack.PackSnapshot{Current: np(i1), Voltage: np(v1)}},
+			{T: t0 + 1e9, Pack: pack.PackSnapshot{Current: np(i2), Voltage: np(v2)}}}
+	}
+	cases := []struct {
+		name string
+		s    []Sample
+		want float64
+		ok   bool
+	}{
+		{"discharge pulse", mk(0, 3.700, -50, 3.550), 3.00, true}, // positive current charges
+		{"regen pulse", mk(0, 3.690, 37.5, 3.795), 2.80, true},
+		{"step too small", mk(0, 3.700, -2, 3.694), 0, false},
+		{"no voltage", []Sample{{Pack: pack.PackSnapshot{Current: np(0)}}, {Pack: pack.PackSnapshot{Current: np(-50)}}}, 0, false},
+	}
+	for _, c := range cases {
+		got, ok := Resistance(c.s)
+		if ok != c.ok || math.Abs(got-c.want) > 1e-9 {
+			t.Errorf("%s: %v %v, want %v %v", c.name, got, ok, c.want, c.ok)
+		}
+	}
+}
+
+func TestCanonicalRoundTrip(t *testing.T) {
+	r := testRecord(t, func(i int, p *pack.PackSnapshot) {
+		p.Cells[0].V = np(3.9250000000000003) // binary noise of scaling
+	}, time.Unix(0, t0))
+	r.Hash = ""
+	h1, err := r.ComputeHash()
+	if err != nil {
+		t.Fatal(err)
+	}
+	r.Hash = h1
+	b, err := r.JSON()
+	if err != nil {
+		t.Fatal(err)
+	}
+	back, err := ParseRecord(b)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := back.VerifyHash(); err != nil {
+		t.Fatalf("a record read back from its JSON fails its hash: %v", err)
+	}
+	back.Rules[0].Reason += "."
+	if err := back.VerifyHash(); !errors.Is(err, ErrTampered) {
+		t.Fatalf("an edited record passes: %v", err)
+	}
+}
+
+func TestHistoryChainAndTamper(t *testing.T) {
+	ctx := context.Background()
+	path := filepath.Join(t.TempDir(), "sub", "checks.db")
+	h, err := OpenHistory(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer h.Close()
+	now := time.Unix(0, t0)
+	var hashes []string
+	for i := 0; i < 4; i++ {
+		var mod func(int, *pack.PackSnapshot)
+		if i == 2 {
+			mod = func(_ int, p *pack.PackSnapshot) { p.SOC.Pct = np(10) }
+		}
+		r := testRecord(t, mod, now.Add(time.Duration(i)*time.Hour))
+		prev, err := h.Last(ctx, r.Pack.Key)
+		if err != nil {
+			t.Fatal(err)
+		}
+		r.Compare(prev)
+		if err := h.Save(ctx, r); err != nil {
+			t.Fatal(err)
+		}
+		if i > 0 && (r.PrevHash != hashes[i-1] || r.Changes == nil || r.Changes.PreviousHash != hashes[i-1]) {
+			t.Fatalf("record %d not chained: %+v", i, r.Changes)
+		}
+		hashes = append(hashes, r.Hash)
+	}
+	// SOC 72 % → 10 %: change −62 points (arithmetic).
+	got, err := h.Get(ctx, hashes[2][:10])
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got.Changes == nil || got.Changes.SOCPct.Change == nil || *got.Changes.SOCPct.Change != -62 || got.Verdict != VerdictNoGo {
+		t.Fatalf("changes %+v verdict %s", got.Changes, got.Verdict)
+	}
+	list, err := h.List(ctx, "serial:POD-7", 0)
+	if err != nil || len(list) != 4 || list[0].Hash != hashes[3] || len(list[1].Failing) != 1 || list[1].Failing[0] != "State of charge" {
+		t.Fatalf("list %v %+v", err, list)
+	}
+	if n, head, probs, err := h.Verify(ctx); err != nil || n != 4 || head != hashes[3] || len(probs) != 0 {
+		t.Fatalf("clean chain: %d %s %v %v", n, head, probs, err)
+	}
+
+	// Edit a stored record directly in the database (a verdict changed to go).
+	db, err := sql.Open("sqlite", path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer db.Close()
+	if _, err := db.Exec(`UPDATE checks SET record = replace(record, '"verdict":"no-go"', '"verdict":"go"'), verdict = 'go' WHERE hash = ?`, hashes[2]); err != nil {
+		t.Fatal(err)
+	}
+	_, _, probs, err := h.Verify(ctx)
+	if err != nil || len(probs) != 1 || !strings.Contains(probs[0].Text, "content does not match its hash") {
+		t.Fatalf("edited record: %v %+v", err, probs)
+	}
+	// Remove a record from the middle.
+	if _, err := db.Exec(`DELETE FROM checks WHERE hash = ?`, hashes[1]); err != nil {
+		t.Fatal(err)
+	}
+	_, _, probs, _ = h.Verify(ctx)
+	var missing bool
+	for _, p := range probs {
+		missing = missing || strings.Contains(p.Text, "missing or was changed")
+	}
+	if !missing {
+		t.Fatalf("removed record not detected: %+v", probs)
+	}
+	// A saved record cannot be confirmed again.
+	r, _ := h.Get(ctx, hashes[3])
+	if err := r.Confirm(nil, "x", ""); err == nil {
+		t.Error("a saved record was changed")
+	}
+	if _, err := h.Get(ctx, "zz"); !errors.Is(err, ErrNotFound) {
+		t.Errorf("bad hash: %v", err)
+	}
+}
