@@ -42,15 +42,15 @@ func (d *diagnoser) check(now int64, n, good, bad uint64, a adapter) (string, bo
 	h := ""
 	d.overrun = false
 	switch {
-	case d.total == 0 && now-d.connected >= d.quiet:
-		h = fmt.Sprintf("no bytes received in %v: is the device powered and sending?", time.Duration(now-d.connected).Round(time.Second))
-	case d.total > 0 && now-d.lastByte >= d.quiet:
-		h = fmt.Sprintf("no bytes for %v", time.Duration(now-d.lastByte).Round(time.Second))
-	default:
+	case w.bytes > 0:
 		h = a.hint(w)
 		if o, ok := a.(interface{ overran(window) bool }); ok {
 			d.overrun = o.overran(w)
 		}
+	case d.total == 0 && now-d.connected >= d.quiet:
+		h = fmt.Sprintf("no bytes received in the first %v: is the device powered and sending?", time.Duration(d.quiet))
+	case d.total > 0 && now-d.lastByte >= d.quiet:
+		h = fmt.Sprintf("no bytes in the last %v", time.Duration(d.quiet))
 	}
 	changed := h != d.hint
 	d.hint = h
