@@ -100,14 +100,14 @@ func (c *collector) pack(e *emitter, p *pack.PackSnapshot) {
 
 	// Margins, bounds and states of every limit the profile sets.
 	for _, m := range p.Margins {
-		u, ok := limitUnits[m.Unit]
-		if !ok {
-			continue // a unit this package does not know: no name for it
+		// A unit this package does not know has no metric name: such a
+		// limit gets its state, not its margin.
+		if u, ok := limitUnits[m.Unit]; ok {
+			if m.Margin != nil {
+				e.gauge(d.margin[u.suffix], u.factor*float64(*m.Margin), id, m.Limit)
+			}
+			e.gauge(d.bound[u.suffix], u.factor*float64(m.Bound), id, m.Limit)
 		}
-		if m.Margin != nil {
-			e.gauge(d.margin[u.suffix], u.factor*float64(*m.Margin), id, m.Limit)
-		}
-		e.gauge(d.bound[u.suffix], u.factor*float64(m.Bound), id, m.Limit)
 		e.stateSet(d.limitState, levelStates, m.State, id, m.Limit)
 		e.gaugeP(d.toLimit, m.ToLimitS, id, m.Limit)
 	}
