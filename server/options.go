@@ -19,6 +19,12 @@ type Engine interface {
 	Ack(packID string, alarmID uint64) error
 }
 
+// BusViewer is implemented by an engine that builds the bus view; New uses
+// it when Options.BusView is nil.
+type BusViewer interface {
+	BusView() pack.BusView
+}
+
 // Replay is the optional control of a replay, reached from the page when
 // Options.Replay is set (POST /api/replay/...). Seek takes the offset from the
 // start of the recording; SetSpeed a factor of real time (1 = real time).
@@ -41,8 +47,8 @@ type Options struct {
 	// Engine builds the snapshots. Required.
 	Engine Engine
 	// BusView returns the bus view (per-source and per-ID statistics) as a
-	// JSON-marshalable value, or nil when there is none; /api/bus and the
-	// page's bus panel use it.
+	// JSON-marshalable value; /api/bus and the page's bus panel use it. Nil
+	// means the Engine's own BusView when it is a BusViewer, else none.
 	BusView func() any
 	// ProfileJSON returns the effective profile(s) as a JSON-marshalable
 	// value for /api/profile; nil gives 404.

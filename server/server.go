@@ -55,6 +55,11 @@ func New(o Options) (*Server, error) {
 	if o.Token != "" && len(o.Token) < 16 {
 		return nil, errors.New("server: token too short: use 16 characters or more, or leave it empty to have one generated")
 	}
+	if o.BusView == nil {
+		if bv, ok := o.Engine.(BusViewer); ok {
+			o.BusView = func() any { return bv.BusView() }
+		}
+	}
 	s := &Server{opts: o}
 	var tlsConf *tls.Config
 	if o.TLSCert != "" || o.TLSConfig != nil {

@@ -53,7 +53,7 @@
     return p(d.getHours()) + ":" + p(d.getMinutes()) + ":" + p(d.getSeconds());
   }
   function unitDigits(unit) {
-    if (unit === "V") return 3;
+    if (unit === "V") return 2;
     if (unit === "A" || unit === "\u00b0C" || unit === "%") return 1;
     return 2;
   }
@@ -278,18 +278,9 @@
         row.appendChild(el("span", "tag"));
         box.appendChild(row);
       });
-      var sc = $("cell-scale");
-      sc.textContent = "";
-      var mkTick = function (v, cls, label) {
-        var t = el("span", "tick " + cls, label);
-        t.style.left = pos(v) + "%";
-        sc.appendChild(t);
-      };
-      mkTick(lo, "t-lo", "\u2716 " + lo.toFixed(2) + " V");
-      if (warn > 0) { mkTick(lo + warn, "t-w", "! " + (lo + warn).toFixed(2)); mkTick(hi - warn, "t-w", "! " + (hi - warn).toFixed(2)); }
-      mkTick(hi, "t-hi", "\u2716 " + hi.toFixed(2) + " V");
       state.cellKey = key;
     }
+    renderScale(box, lo, hi, warn);
     var st = p.cell_stats;
     var avgPos = isNum(st.avg_v) ? pos(st.avg_v) + "%" : "";
     var rows = box.children;
@@ -305,15 +296,17 @@
       avg.style.left = avgPos;
       avg.hidden = !avgPos;
       row.children[2].textContent = isNum(c.v) ? c.v.toFixed(3) : "--";
+      // Short text cues beside the colour: state word, then min/max arrow.
       var tag = [];
-      if (c.is_max) tag.push("\u25b2max");
-      if (c.is_min) tag.push("\u25bcmin");
-      if (cs === "warn") tag.push("! warn");
-      if (cs === "trip") tag.push("\u2716 TRIP");
-      if (cs === "fault") tag.push("\u2716 fault");
+      if (cs === "warn") tag.push("!warn");
+      if (cs === "trip") tag.push("\u2716TRIP");
+      if (cs === "fault") tag.push("\u2716fault");
       if (cs === "stale") tag.push("stale " + dur(c.age_s));
       if (cs === "missing") tag.push("no data");
-      if (c.balancing) tag.push("\u21c4bal");
+      var plain = tag.length === 0;
+      if (c.is_max) tag.push(plain ? "\u25b2max" : "\u25b2");
+      if (c.is_min) tag.push(plain ? "\u25bcmin" : "\u25bc");
+      if (c.balancing) tag.push("\u21c4");
       row.children[3].textContent = tag.join(" ");
     });
     setText("cell-reporting", st.reporting + " of " + p.cells.length + " reporting");
@@ -325,11 +318,30 @@
       ["Spread", isNum(st.spread_v) ? (st.spread_v * 1000).toFixed(0) + "\u2009mV" : "--"],
       ["Deviation", isNum(st.deviation_v) ? (st.deviation_v * 1000).toFixed(0) + "\u2009mV" + (st.deviation_cell ? " #" + st.deviation_cell : "") : "--"],
     ];
-    if (dl.children.length !== items.length * 2) {
+    if (dl.children.length !== items.length) {
       dl.textContent = "";
-      items.forEach(function () { dl.appendChild(el("dt")); dl.appendChild(el("dd")); });
+      items.forEach(function () { var d = el("div"); d.appendChild(el("dt")); d.appendChild(el("dd")); dl.appendChild(d); });
     }
-    items.forEach(function (it, i) { dl.children[2 * i].textContent = it[0]; dl.children[2 * i + 1].textContent = it[1]; });
+    items.forEach(function (it, i) { dl.children[i].children[0].textContent = it[0]; dl.children[i].children[1].textContent = it[1]; });
+  }
+
+  // renderScale draws the limit scale above each column of bars.
+  function renderScale(box, lo, hi, warn) {
+    var cols = getComputedStyle(box).gridTemplateColumns.split(" ").filter(Boolean).length || 1;
+    var sc = $("cell-scale");
+    var key = cols + ":" + lo + ":" + hi + ":" + warn;
+    if (sc.getAttribute("data-key") === key) return;
+    sc.textContent = "";
+    for (var i = 0; i < cols; i++) {
+      var col = el("div", "scale-col");
+      col.appendChild(el("span"));
+      var t = el("span", "scale-track");
+      t.appendChild(el("span", "tick t-lo", "\u2716 " + lo.toFixed(2) + "\u2009V"));
+      t.appendChild(el("span", "tick t-hi", hi.toFixed(2) + "\u2009V \u2716"));
+      col.appendChild(t);
+      sc.appendChild(col);
+    }
+    sc.setAttribute("data-key", key);
   }
 
   // ---------- state of charge ----------
@@ -395,14 +407,13 @@
     }
     ms.forEach(function (m, i) {
       var tr = tb.children[i];
-      var d = unitDigits(m.unit);
-      if (m.unit === "V" && m.limit !== "cell_high" && m.limit !== "cell_low") d = 3;
+      var d = m.unit === "V" ? 3 : unitDigits(m.unit); // cell-level volts: millivolts matter
       tr.className = "st-" + m.state;
       tr.children[0].textContent = (STATE_WORD[m.state] || m.state) + "  " + m.label + (m.subject ? " (" + m.subject + ")" : "");
       tr.children[1].textContent = fmt(m.value, d, m.unit);
       tr.children[2].textContent = fmt(m.bound, d, m.unit);
       tr.children[3].textContent = isNum(m.margin) ? (m.margin < 0 ? "past by " + fmt(-m.margin, d, m.unit) : fmt(m.margin, d, m.unit)) : "--";
-      tr.children[4].textContent = isNum(m.to_limit_s) ? "\u2248 " + dur(m.to_limit_s) : "not trending";
+      tr.children[4].textContent = isNum(m.to_limit_s) ? "\u2248 " + dur(m.to_limit_s) : "no trend";
     });
   }
 
@@ -579,8 +590,8 @@
   }
   function soundButton() {
     var b = $("sound");
-    if (!audio.ctx) { b.textContent = "\ud83d\udd07 Sound not armed: tap"; b.className = "btn sound-off"; b.setAttribute("aria-pressed", "false"); return; }
-    b.textContent = audio.muted ? "\ud83d\udd07 Sound muted" : "\ud83d\udd0a Sound on";
+    if (!audio.ctx) { b.textContent = "Sound not armed: tap"; b.className = "btn sound-off"; b.setAttribute("aria-pressed", "false"); return; }
+    b.textContent = audio.muted ? "Sound muted: tap for on" : "Sound on: tap to mute";
     b.className = "btn " + (audio.muted ? "sound-muted" : "sound-on");
     b.setAttribute("aria-pressed", audio.muted ? "false" : "true");
   }
@@ -651,16 +662,29 @@
     while (s.length < w) s = "0" + s;
     return "0x" + s;
   }
+  // renderBus shows pack.BusView: per source every CAN ID (id_hex, rate,
+  // count, last data, decoded fields) or line pattern, bus load.
   function renderBus(b) {
     var body = $("bus-body");
-    body.textContent = "";
     var srcs = (b && b.sources) || [];
-    if (!srcs.length) { body.appendChild(el("p", "quiet", "Nothing seen on any bus yet.")); return; }
+    var frag = document.createDocumentFragment();
+    if (!srcs.length) frag.appendChild(el("p", "quiet", "Nothing seen on any bus yet."));
+    var multi = state.snap && state.snap.packs.length > 1;
     srcs.forEach(function (s) {
-      var h = el("h3", "", s.name + (s.kind ? " (" + s.kind + ")" : "") + (isNum(s.load_pct) ? " \u00b7 bus load " + s.load_pct.toFixed(1) + "\u2009%" : ""));
-      body.appendChild(h);
+      var head = s.name + (s.kind ? " (" + s.kind + (s.device ? " " + s.device : "") + ")" : "") + (multi && s.pack ? " \u00b7 pack " + s.pack : "");
+      frag.appendChild(el("h3", "", head));
+      var facts = [];
+      if (s.state) facts.push(s.state + (s.reason ? ": " + s.reason : ""));
+      if (isNum(s.load_pct)) facts.push("bus load " + s.load_pct.toFixed(1) + "\u2009%" + (s.bitrate ? " of " + (s.bitrate / 1000) + "\u2009kbit/s" : ""));
+      if (isNum(s.rate_hz)) facts.push(s.rate_hz.toFixed(0) + " msg/s");
+      if (s.unknown) facts.push(s.unknown + " unknown");
+      if (s.decode_errors) facts.push(s.decode_errors + " decode errors");
+      if (s.error_frames) facts.push(s.error_frames + " error frames");
+      frag.appendChild(el("p", "sub", facts.join(" \u00b7 ")));
+      if (s.diagnosis) frag.appendChild(el("p", "src-d", s.diagnosis));
       var ids = s.ids || [];
       if (ids.length) {
+        var wrap = el("div", "scroll-x");
         var t = el("table", "grid-table bus-table");
         var hd = el("thead"), hr = el("tr");
         ["ID", "Rate", "Count", "Last data", "Decoded"].forEach(function (x) { hr.appendChild(el("th", "", x)); });
@@ -668,33 +692,39 @@
         var tb = el("tbody");
         ids.forEach(function (r) {
           var tr = el("tr", r.known ? "" : "unknown");
-          tr.appendChild(el("td", "mono", (typeof r.id === "string" ? r.id : hex(r.id, r.ext)) + (r.known ? "" : " ? unknown")));
+          var idText = r.id_hex || hex(r.id, r.extended);
+          tr.appendChild(el("td", "mono", idText + (r.known ? "" : " ? unknown")));
           tr.appendChild(el("td", "", fmt(r.rate_hz, 1, "/s")));
           tr.appendChild(el("td", "", String(r.count === undefined ? "" : r.count)));
-          tr.appendChild(el("td", "mono", (r.data || "").replace(/(..)(?=.)/g, "$1 ")));
-          var dec = (r.fields || []).map(function (f) { return f.bind + " = " + (f.text || fmt(f.value, unitDigits(f.unit), f.unit)); }).join("; ");
+          tr.appendChild(el("td", "mono", (r.data || "").toUpperCase().replace(/(..)(?=.)/g, "$1 ") + (isNum(r.age_s) && r.age_s > 2 ? "  (" + dur(r.age_s) + " ago)" : "")));
+          var dec = (r.fields || []).map(function (f) { return f.bind + " = " + (f.text || fmt(f.value, unitDigits(f.unit), f.unit)) + (f.state && f.state !== "ok" ? " [" + f.state + "]" : ""); }).join("; ");
           tr.appendChild(el("td", "", dec));
           tb.appendChild(tr);
         });
         t.appendChild(tb);
-        body.appendChild(t);
+        wrap.appendChild(t);
+        frag.appendChild(wrap);
       }
-      var lines = s.lines || [];
-      if (lines.length) {
+      var pats = s.patterns || [];
+      if (pats.length) {
         var t2 = el("table", "grid-table bus-table");
+        var h2 = el("thead"), r2 = el("tr");
+        ["Line pattern", "Lines matched"].forEach(function (x) { r2.appendChild(el("th", "", x)); });
+        h2.appendChild(r2); t2.appendChild(h2);
         var tb2 = el("tbody");
-        lines.forEach(function (r) {
-          var tr = el("tr", r.known === false ? "unknown" : "");
-          tr.appendChild(el("td", "mono", r.pattern || "(unmatched)"));
-          tr.appendChild(el("td", "", fmt(r.rate_hz, 1, "/s")));
-          tr.appendChild(el("td", "", String(r.count === undefined ? "" : r.count)));
-          tr.appendChild(el("td", "mono", r.last || ""));
+        pats.forEach(function (r) {
+          var tr = el("tr", r.count ? "" : "unknown");
+          tr.appendChild(el("td", "mono", r.pattern));
+          tr.appendChild(el("td", "", String(r.count)));
           tb2.appendChild(tr);
         });
         t2.appendChild(tb2);
-        body.appendChild(t2);
+        frag.appendChild(t2);
       }
+      if (s.last_line) frag.appendChild(el("p", "mono", "last line: " + s.last_line));
     });
+    body.textContent = "";
+    body.appendChild(frag);
   }
 
   // ---------- replay ----------
