@@ -127,6 +127,7 @@ type updateWriter struct {
 	w     *bufio.Writer
 	start int64
 	buf   []byte
+	keep  []bool // slots to write; nil writes all
 }
 
 func newUpdateWriter(m *decode.Map, w *bufio.Writer) *updateWriter {
@@ -138,6 +139,9 @@ func (d *updateWriter) write(msg *bus.Message) {
 	d.m.Decode(msg, d.v)
 	slots := d.m.Slots()
 	for _, s := range d.v.Updated {
+		if d.keep != nil && !d.keep[s] {
+			continue
+		}
 		sl := &slots[s]
 		b := d.buf[:0]
 		b = append(b, `{"t":`...)

@@ -30,6 +30,10 @@ func commands() map[string]command {
 		"version":  {"print the version", runVersion},
 		"serve":    {"show packs live from their profiles' sources on a local web page", runServe},
 		"demo":     {"a simulated pack on the dashboard, no hardware needed", runDemo},
+		"record":   {"record a profile's live sources to a file, headless", runRecord},
+		"import":   {"turn a capture file into a recording", runImport},
+		"replay":   {"play a recording through the dashboard", runReplay},
+		"export":   {"export a recording to CSV or JSON lines", runExport},
 		"help":     {"list the commands", nil},
 	}
 }

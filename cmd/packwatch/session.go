@@ -51,19 +51,27 @@ type session struct {
 // several profiles are opened once: the engine's source table lists each
 // (kind, device) once and every pack maps it to its own source.
 func newSession(profiles []*config.Profile, maps []*decode.Map, mode string, rec *record.Writer, log *slog.Logger) (*session, error) {
-	s := &session{mode: mode, rec: rec, log: log}
+	var devices []device
 	index := map[string]int{}
 	for _, p := range profiles {
 		for i, src := range p.Sources {
 			key := src.Kind + "|" + src.Device
 			if _, ok := index[key]; !ok {
 				spec := specFor(p, i)
-				spec.Index = uint16(len(s.devices))
-				index[key] = len(s.devices)
-				s.devices = append(s.devices, device{spec: spec})
+				spec.Index = uint16(len(devices))
+				index[key] = len(devices)
+				devices = append(devices, device{spec: spec})
 			}
 		}
 	}
+	return newSessionOn(devices, false, profiles, maps, mode, rec, log)
+}
+
+// newSessionOn builds the engine over a given device table (a replay uses
+// the recording's). Each pack maps a device to its own source of the same
+// kind and device, else (when byName) of the same name.
+func newSessionOn(devices []device, byName bool, profiles []*config.Profile, maps []*decode.Map, mode string, rec *record.Writer, log *slog.Logger) (*session, error) {
+	s := &session{mode: mode, rec: rec, log: log, devices: devices}
 	opt := pack.Options{Mode: mode}
 	if rec != nil {
 		opt.RawSink = rec
@@ -72,11 +80,23 @@ func newSession(profiles []*config.Profile, maps []*decode.Map, mode string, rec
 	ids := map[string]int{}
 	for pi, p := range profiles {
 		e := &packEntry{prof: p, m: maps[pi], srcMap: make([]int, len(s.devices))}
-		for i := range e.srcMap {
-			e.srcMap[i] = -1
-		}
-		for i, src := range p.Sources {
-			e.srcMap[index[src.Kind+"|"+src.Device]] = i
+		for di, d := range s.devices {
+			e.srcMap[di] = -1
+			for i, src := range p.Sources {
+				if src.Kind == d.spec.Kind && src.Device == d.spec.Device {
+					e.srcMap[di] = i
+					break
+				}
+			}
+			if e.srcMap[di] >= 0 || !byName {
+				continue
+			}
+			for i, src := range p.Sources {
+				if src.Name == d.spec.Name {
+					e.srcMap[di] = i
+					break
+				}
+			}
 		}
 		e.id = packKey(p, pi)
 		if n := ids[e.id]; n > 0 {
@@ -220,8 +240,14 @@ func (f *serveFlags) register(fs interface {
 // runSession runs the server and the data sources until ctx ends, then
 // shuts everything down in order: sources, server, recorder.
 func runSession(ctx context.Context, s *session, f *serveFlags, mode string, data func(ctx context.Context) error, stdout io.Writer) error {
+	return runSessionWith(ctx, s, f, mode, nil, data, stdout)
+}
+
+// runSessionWith is runSession with replay controls on the page.
+func runSessionWith(ctx context.Context, s *session, f *serveFlags, mode string, replay server.Replay, data func(ctx context.Context) error, stdout io.Writer) error {
 	srv, err := server.New(server.Options{
-		Addr: f.addr, Engine: s.eng, Token: f.token, TLSCert: f.tlsCert, TLSKey: f.tlsKey,
+		Replay: replay,
+		Addr:   f.addr, Engine: s.eng, Token: f.token, TLSCert: f.tlsCert, TLSKey: f.tlsKey,
 		BusView:     func() any { return s.eng.BusView() },
 		ProfileJSON: s.profileJSON,
 		Mode:        mode, Version: version, Logger: s.log, Banner: stdout,
