@@ -88,8 +88,39 @@ func (ps *packState) update(s int32, ids *uint64) {
 			ps.soc.anchor(val/100, ps.counter.NetAs, false)
 		}
 	}
+	// The slot's checks sit together in ps.checks; the reading is fresh.
+	ok := flag == decode.FlagOK
+	if ok && ps.notOK[s] == 0 {
+		ch := 0
+		if ps.charging {
+			ch = 1
+		}
+		if b := &ps.band[s][ch]; val >= b[0] && val <= b[1] {
+			// Every check ok and staying ok: nothing changes. c.value is
+			// only read for checks off ok (runDue, trip alarms).
+			return
+		}
+	}
 	for k := ps.slotChecks[s]; k < ps.slotChecks[s+1]; k++ {
-		ps.stepSlotCheck(ps.checkIdx[k], t, ids)
+		c := &ps.checks[k]
+		if !ok {
+			c.value = nan
+			ps.stepCheck(c, nan, t, ids)
+			continue
+		}
+		c.value = val
+		m := c.spec.bound - val
+		if !c.spec.upper {
+			m = -m
+		}
+		if c.charge && !ps.charging {
+			m = math.MaxFloat64
+		}
+		// Fast path: ok and staying ok changes nothing (no timer runs at ok).
+		if c.tr.Level == LevelOK && m >= c.spec.rule.Warn {
+			continue
+		}
+		ps.stepCheck(c, m, t, ids)
 	}
 }
 
@@ -122,21 +153,25 @@ func (ps *packState) slotMargin(c *check, t int64) float64 {
 		return nan
 	}
 	c.value = ps.v.V[s]
-	if (c.lim == LimChargeTempLow || c.lim == LimChargeTempHigh) && !ps.charging {
+	if c.charge && !ps.charging {
 		return math.MaxFloat64
 	}
-	return ps.lim[c.lim].margin(c.value)
-}
-
-func (ps *packState) stepSlotCheck(ci int32, t int64, ids *uint64) {
-	c := &ps.checks[ci]
-	ps.stepCheck(c, ps.slotMargin(c, t), t, ids)
+	return c.spec.margin(c.value)
 }
 
 // stepCheck advances a check's timer and opens or closes its alarm.
 func (ps *packState) stepCheck(c *check, margin float64, t int64, ids *uint64) {
-	r := &ps.lim[c.lim].rule
-	switch c.tr.Step(margin, t, r) {
+	r := &c.spec.rule
+	wasOK := c.tr.Level == LevelOK
+	ev := c.tr.Step(margin, t, r)
+	if isOK := c.tr.Level == LevelOK; isOK != wasOK && c.slot >= 0 {
+		if isOK {
+			ps.notOK[c.slot]--
+		} else {
+			ps.notOK[c.slot]++
+		}
+	}
+	switch ev {
 	case EventTripped:
 		*ids++
 		c.alarm = *ids
@@ -157,13 +192,13 @@ func (ps *packState) runDue(t int64, ids *uint64) {
 	ps.nextDue = never
 	for i := range ps.checks {
 		c := &ps.checks[i]
-		r := &ps.lim[c.lim].rule
+		r := &c.spec.rule
 		if c.tr.Due(r) <= t {
 			m := nan
 			if c.slot >= 0 {
 				m = ps.slotMargin(c, t)
 			} else if !math.IsNaN(c.value) {
-				m = ps.lim[c.lim].margin(c.value)
+				m = c.spec.margin(c.value)
 			}
 			ps.stepCheck(c, m, t, ids)
 		} else if d := c.tr.Due(r); d < ps.nextDue {

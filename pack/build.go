@@ -176,7 +176,7 @@ func (ps *packState) readingState(s int32, now int64) string {
 	}
 	lv := LevelOK
 	for k := ps.slotChecks[s]; k < ps.slotChecks[s+1]; k++ {
-		c := &ps.checks[ps.checkIdx[k]]
+		c := &ps.checks[k]
 		if c.tr.Level > lv {
 			lv = c.tr.Level
 		}
@@ -215,6 +215,11 @@ var trendOf = [numLimits]int{
 	LimTempHigh: trMaxTemp, LimTempLow: trMinTemp, LimChargeTempLow: trMinTemp, LimChargeTempHigh: trMaxTemp,
 	LimTempRise: -1, LimTempSpread: trTempSpread, LimChargeCurrent: trCurrent, LimDischargeCurrent: trCurrent,
 }
+
+// maxToLimitS: a trend that would take longer than a day to reach a limit
+// counts as not trending toward it (rounding in a flat series gives slopes
+// of 1e-17 and "years to the limit").
+const maxToLimitS = 86400
 
 var levelRank = [...]int{LevelTrip: 0, LevelWarn: 1, LevelOK: 2, LevelNoData: 3}
 
@@ -289,7 +294,7 @@ func (ps *packState) margins(now int64, out *PackSnapshot) []Margin {
 				switch {
 				case margin <= 0:
 					m.ToLimitS = numPtr(0)
-				case rate < 0:
+				case rate < 0 && margin/-rate <= maxToLimitS:
 					m.ToLimitS = numPtr(margin / -rate)
 				}
 			}

@@ -375,7 +375,7 @@ period_ms = 1000
 	s := newScene()
 	serial := uint32(1001)
 	send := func(from, to int64) {
-		drive(e, s, from, to, 4, func(t int64, s *scene) {
+		drive(e, s, from, to, 1, func(t int64, s *scene) {
 			if (t-epoch)%sec == 0 {
 				e.Deliver([]bus.Message{canMsg(t, 0x4F0, byte(serial), byte(serial>>8), byte(serial>>16), byte(serial>>24))})
 			}
@@ -564,11 +564,16 @@ func TestEngineSwapAndReset(t *testing.T) {
 
 func mustRead(t *testing.T, path string) string {
 	t.Helper()
-	b, err := os.ReadFile(path)
+	s, err := readFile(path)
 	if err != nil {
 		t.Fatal(err)
 	}
-	return string(b)
+	return s
+}
+
+func readFile(path string) (string, error) {
+	b, err := os.ReadFile(path)
+	return string(b), err
 }
 
 type countSink struct{ n int }

@@ -2,6 +2,7 @@ package pack
 
 import (
 	"fmt"
+	"math"
 	"strings"
 
 	"packwatch/config"
@@ -35,12 +36,14 @@ const (
 // check is one limit check with its timer: per reading (slot ≥ 0) or on an
 // aggregate (slot −1).
 type check struct {
-	lim   LimitID
-	slot  int32
-	subj  int32   // cell or sensor number from 1; 0 for the pack
-	value float64 // latest value compared, NaN when none
-	tr    Trip
-	alarm uint64 // open trip alarm, 0 none
+	spec   limitSpec // copy of the limit, kept beside the timer for the hot path
+	lim    LimitID
+	charge bool // applies only while charging (the charge temperature window)
+	slot   int32
+	subj   int32   // cell or sensor number from 1; 0 for the pack
+	value  float64 // latest value compared, NaN when none
+	tr     Trip
+	alarm  uint64 // open trip alarm, 0 none
 }
 
 // alarm is one entry in the alarm list.
@@ -107,14 +110,19 @@ type packState struct {
 	socSlot    int32
 	serialSlot int32
 	chargeVSlt int32
-	fault      []bool // per slot: the latest reading was a sensor fault
+	fault      []bool  // per slot: the latest reading was a sensor fault
+	staleNs    []int64 // per slot: 3 × its interval, 0 = never stale
 
 	lim        [numLimits]limitSpec
 	checks     []check
-	slotChecks []int32 // per slot: start in checkIdx; len(slots)+1 entries
-	checkIdx   []int32
+	slotChecks []int32          // per slot: its checks are checks[slotChecks[s]:slotChecks[s+1]]
 	aggCheck   [numLimits]int32 // aggregate checks by limit, −1 none
-	nextDue    int64
+	// Per slot, the band of readings inside every check's warn margin
+	// (band[s][1] while charging, [0] otherwise) and how many of its checks
+	// are not at ok: a reading in the band with none off ok changes nothing.
+	band    [][2][2]float64
+	notOK   []int32
+	nextDue int64
 
 	aggPeriod int64
 	nextAgg   int64
@@ -150,6 +158,7 @@ func newPackState(id string, m *decode.Map, srcMap []int) *packState {
 	ps := &packState{
 		id: id, m: m, prof: p, v: decode.NewValues(m), slots: slots, srcMap: srcMap,
 		nsrc: len(p.Sources), role: make([]role, len(slots)), fault: make([]bool, len(slots)),
+		staleNs: make([]int64, len(slots)),
 		curSlot: -1, voltSlot: -1, socSlot: -1, serialSlot: -1, chargeVSlt: -1, curSrc: -1,
 		nextDue: never,
 	}
@@ -179,6 +188,9 @@ func newPackState(id string, m *decode.Map, srcMap []int) *packState {
 	for i, s := range slots {
 		si := int32(i)
 		b := s.Bind
+		if s.IntervalNs > 0 {
+			ps.staleNs[i] = 3 * s.IntervalNs
+		}
 		switch b.Kind {
 		case config.BindCellVoltage:
 			if b.Index >= 1 && b.Index <= cells {
@@ -214,6 +226,7 @@ func newPackState(id string, m *decode.Map, srcMap []int) *packState {
 
 	ps.lim = resolveLimits(p)
 	ps.buildChecks()
+	ps.recount()
 
 	ps.deadband = DefaultDeadbandA
 	if d := p.SOC.CurrentDeadbandA; d != nil && *d >= 0 {
@@ -251,8 +264,9 @@ func filled(n int, v int32) []int32 {
 	return s
 }
 
-// buildChecks lays out the checks: per slot in a compressed index (the
-// per-update path walks slotChecks[s]..slotChecks[s+1]), then the aggregates.
+// buildChecks lays out the checks: first the per-reading checks grouped by
+// slot in slot order (the per-update path walks checks[slotChecks[s]:
+// slotChecks[s+1]]), then the aggregates.
 func (ps *packState) buildChecks() {
 	per := make([][]LimitID, len(ps.slots))
 	for i := range ps.slots {
@@ -269,23 +283,51 @@ func (ps *packState) buildChecks() {
 	}
 	ps.slotChecks = make([]int32, len(ps.slots)+1)
 	for i := range ps.slots {
-		ps.slotChecks[i] = int32(len(ps.checkIdx))
+		ps.slotChecks[i] = int32(len(ps.checks))
 		for _, l := range per[i] {
 			if !ps.lim[l].set {
 				continue
 			}
-			ps.checkIdx = append(ps.checkIdx, int32(len(ps.checks)))
-			ps.checks = append(ps.checks, check{lim: l, slot: int32(i), subj: int32(ps.slots[i].Bind.Index), value: nan})
+			ps.checks = append(ps.checks, check{spec: ps.lim[l], lim: l, slot: int32(i), subj: int32(ps.slots[i].Bind.Index), value: nan,
+				charge: l == LimChargeTempLow || l == LimChargeTempHigh})
 		}
 	}
-	ps.slotChecks[len(ps.slots)] = int32(len(ps.checkIdx))
+	ps.slotChecks[len(ps.slots)] = int32(len(ps.checks))
+	ps.band = make([][2][2]float64, len(ps.slots))
+	for i := range ps.slots {
+		for ch := range 2 {
+			lo, hi := math.Inf(-1), math.Inf(1)
+			for k := ps.slotChecks[i]; k < ps.slotChecks[i+1]; k++ {
+				c := &ps.checks[k]
+				if c.charge && ch == 0 {
+					continue
+				}
+				if c.spec.upper {
+					hi = min(hi, c.spec.bound-c.spec.rule.Warn)
+				} else {
+					lo = max(lo, c.spec.bound+c.spec.rule.Warn)
+				}
+			}
+			ps.band[i][ch] = [2]float64{lo, hi}
+		}
+	}
 	for i := range ps.aggCheck {
 		ps.aggCheck[i] = -1
 	}
 	for _, l := range []LimitID{LimSpread, LimDeviation, LimTempSpread, LimTempRise} {
 		if ps.lim[l].set {
 			ps.aggCheck[l] = int32(len(ps.checks))
-			ps.checks = append(ps.checks, check{lim: l, slot: -1, value: nan})
+			ps.checks = append(ps.checks, check{spec: ps.lim[l], lim: l, slot: -1, value: nan})
+		}
+	}
+}
+
+// recount works out notOK from the checks' levels.
+func (ps *packState) recount() {
+	ps.notOK = make([]int32, len(ps.slots))
+	for i := range ps.checks {
+		if c := &ps.checks[i]; c.slot >= 0 && c.tr.Level != LevelOK {
+			ps.notOK[c.slot]++
 		}
 	}
 }
@@ -346,6 +388,7 @@ func (ps *packState) swapped(m *decode.Map) *packState {
 		}
 	}
 	np.nextDue = 0 // re-evaluate every timer at the next message
+	np.recount()
 	// Alarms of slots that no longer exist keep their place (they name their
 	// subject by number); fault alarms point at slot indexes: remap them.
 	np.alarms = append([]alarm(nil), ps.alarms...)
@@ -383,14 +426,14 @@ func (ps *packState) fresh(s int32, now int64) bool {
 	if s < 0 || ps.v.Flag[s] != decode.FlagOK {
 		return false
 	}
-	iv := ps.slots[s].IntervalNs
-	return iv <= 0 || now-ps.v.T[s] <= 3*iv
+	st := ps.staleNs[s]
+	return st == 0 || now-ps.v.T[s] <= st
 }
 
 // stale reports whether slot s has a reading older than three intervals.
 func (ps *packState) stale(s int32, now int64) bool {
-	iv := ps.slots[s].IntervalNs
-	return ps.v.T[s] != 0 && iv > 0 && now-ps.v.T[s] > 3*iv
+	st := ps.staleNs[s]
+	return st > 0 && ps.v.T[s] != 0 && now-ps.v.T[s] > st
 }
 
 // subject names a check's or alarm's subject for people.
