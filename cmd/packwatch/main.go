@@ -34,7 +34,11 @@ func commands() map[string]command {
 		"import":   {"turn a capture file into a recording", runImport},
 		"replay":   {"play a recording through the dashboard", runReplay},
 		"export":   {"export a recording to CSV or JSON lines", runExport},
-		"help":     {"list the commands", nil},
+		"check":    {"pre-flight check: go / no-go for a pack, with a record", runCheck},
+		"simulate": {"drive a device or write a capture from a simulated pack", func(_ context.Context, args []string, stdout, stderr io.Writer) int {
+			return runSimulate(args, stdout, stderr)
+		}},
+		"help": {"list the commands", nil},
 	}
 }
 
