@@ -286,7 +286,10 @@ func (s *Sim) ForceCell(n int, volts float64) error {
 
 // State is the simulated pack's true state at one instant.
 type State struct {
-	T         time.Time // data time
+	// T is the data time up to which messages have been generated, and
+	// Elapsed the same from the start; the physics stands at most one step
+	// behind.
+	T         time.Time
 	Elapsed   time.Duration
 	Phase     Phase
 	Step      int // index of the scenario step running
@@ -306,7 +309,7 @@ func (s *Sim) State() State {
 	s.mu.Lock()
 	defer s.mu.Unlock()
 	m := s.model
-	st := State{T: time.Unix(0, s.start+s.t).UTC(), Elapsed: time.Duration(s.t), Phase: s.story.phase,
+	st := State{T: time.Unix(0, s.start+s.through).UTC(), Elapsed: time.Duration(s.through), Phase: s.story.phase,
 		Step: s.story.step, Pass: s.story.passes, CurrentA: m.I, PackV: m.PackVoltage(m.I),
 		Contactor: m.Contactor, ChargeAh: m.ChargeAs / 3600, Paused: s.paused}
 	for k := range m.Cells {
@@ -395,6 +398,7 @@ func (s *Sim) generate(until int64) {
 		for s.t+s.step <= due {
 			s.tick()
 		}
+		s.garbageUpTo(due)
 		if s.dirty {
 			s.readings = s.rep.update(s.model, s.story.phase, &s.fs, s.forced, s.chgV)
 			s.dirty = false
@@ -415,11 +419,18 @@ func (s *Sim) generate(until int64) {
 		s.tick()
 	}
 	s.through = max(s.through, until)
-	if s.garbage {
-		for s.garbageT+int64(time.Second) <= until {
-			s.garbageT += int64(time.Second)
-			s.appendGarbage(s.garbageT)
-		}
+	s.garbageUpTo(until)
+}
+
+// garbageUpTo adds the garbage of a garbage fault, once a second of
+// simulated time, up to t (ns from the start). Called with mu held.
+func (s *Sim) garbageUpTo(t int64) {
+	if !s.garbage {
+		return
+	}
+	for s.garbageT+int64(time.Second) <= t {
+		s.garbageT += int64(time.Second)
+		s.appendGarbage(s.garbageT)
 	}
 }
 
@@ -478,11 +489,14 @@ func (s *Sim) Run(ctx context.Context, sink bus.Sink) error {
 
 	p := s.dm.Profile()
 	for k := range p.Sources {
-		sink.Status(bus.Status{Src: uint16(k), T: s.start + s.t, State: bus.StateConnected, Reason: "simulated (" + s.sc.Name + ")"})
+		t := s.start + s.now()
+		sink.Status(bus.Status{Src: uint16(k), T: t, State: bus.StateConnecting, Reason: "starting the simulator"})
+		sink.Status(bus.Status{Src: uint16(k), T: t, State: bus.StateConnected, Reason: "simulated (" + s.sc.Name + ")"})
 	}
 	defer func() {
+		t := s.start + s.now()
 		for k := range p.Sources {
-			sink.Status(bus.Status{Src: uint16(k), T: s.start + s.t, State: bus.StateStopped, Reason: "simulation ended"})
+			sink.Status(bus.Status{Src: uint16(k), T: t, State: bus.StateStopped, Reason: "simulation ended"})
 		}
 	}()
 

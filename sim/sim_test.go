@@ -100,7 +100,7 @@ func TestRunDecodesModel(t *testing.T) {
 	if s.EncodeErrors() != 0 {
 		t.Errorf("%d encode errors", s.EncodeErrors())
 	}
-	if len(sink.status) != 4 || sink.status[0].State != bus.StateConnected || sink.status[3].State != bus.StateStopped {
+	if len(sink.status) != 6 || sink.status[0].State != bus.StateConnecting || sink.status[1].State != bus.StateConnected || sink.status[5].State != bus.StateStopped {
 		t.Errorf("status reports %+v", sink.status)
 	}
 }
