@@ -133,21 +133,37 @@ func ruleReporting(w Window) RuleResult {
 		}
 	}
 	okCells, okTemps := 0, 0
+	// Readings not fresh at the end, grouped by what is wrong.
+	type group struct{ kind, state string }
+	groups := map[group][]string{}
+	var order []group
+	add := func(g group, n int) {
+		if _, ok := groups[g]; !ok {
+			order = append(order, g)
+		}
+		groups[g] = append(groups[g], strconv.Itoa(n))
+	}
 	for _, c := range l.Cells {
-		key := "cell " + strconv.Itoa(c.N)
 		if fresh(c.State) {
 			okCells++
-			continue
+		} else if !seen["cell "+strconv.Itoa(c.N)] {
+			add(group{"cell", c.State}, c.N)
 		}
-		note(key, key+" "+stateWords(c.State, c.Age))
 	}
 	for _, t := range l.Temps {
-		key := "sensor " + strconv.Itoa(t.N)
 		if fresh(t.State) {
 			okTemps++
-			continue
+		} else if !seen["sensor "+strconv.Itoa(t.N)] {
+			add(group{"sensor", t.State}, t.N)
 		}
-		note(key, key+" "+stateWords(t.State, t.Age))
+	}
+	for _, g := range order {
+		ns := groups[g]
+		who := g.kind + " " + ns[0]
+		if len(ns) > 1 {
+			who = g.kind + "s " + strings.Join(ns, ", ")
+		}
+		problems = append(problems, who+" "+stateWords(g.state, len(ns) > 1))
 	}
 	r.Measured = fmt.Sprintf("%d of %d cells, %d of %d sensors fresh", okCells, nc, okTemps, nt)
 	r.Value = nump(float64(okCells + okTemps))
@@ -163,14 +179,14 @@ func ruleReporting(w Window) RuleResult {
 	return r
 }
 
-func stateWords(state string, age *pack.Num) string {
+func stateWords(state string, plural bool) string {
 	switch state {
 	case "stale":
-		if age != nil {
-			return fmt.Sprintf("stale (last reading %.1f s old)", float64(*age))
-		}
-		return "stale"
+		return "stale at the end (no recent reading)"
 	case "missing":
+		if plural {
+			return "have not reported (no message, an invalid reading, or no binding in the profile)"
+		}
 		return "has not reported (no message, an invalid reading, or no binding in the profile)"
 	case "fault":
 		return "reading implausible (sensor fault)"

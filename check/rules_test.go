@@ -39,8 +39,8 @@ func testSettings() Settings {
 		MinSOCPct: Setting{Key: "min_soc_pct", Value: 30}, MinCellMarginV: Setting{Key: "min_cell_margin_v", Value: 0.1},
 		CellLowV: 3.0, CellHighV: 4.2, MaxSpreadV: Setting{Key: "max_spread_v", Value: 0.05},
 		MaxRestCurrentA: Setting{Key: "max_rest_current_a", Value: 1},
-		TempLowC:        Setting{Value: 0}, TempHighC: Setting{Value: 45},
-		ChargeTempLowC: Setting{Value: 5}, ChargeTempHighC: Setting{Value: 40},
+		TempLowC:        Setting{Key: "temp_low_c", Value: 0}, TempHighC: Setting{Key: "temp_high_c", Value: 45},
+		ChargeTempLowC: Setting{Key: "charge_temp_low_c", Value: 5}, ChargeTempHighC: Setting{Key: "charge_temp_high_c", Value: 40},
 		Rates: []SourceRate{{Source: "bms", Min: Setting{Key: "min_rate_hz.bms", Value: 50}}},
 	}
 }

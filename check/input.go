@@ -1,0 +1,144 @@
+package check
+
+import (
+	"bytes"
+	"context"
+	"fmt"
+	"io"
+	"os"
+	"time"
+
+	"packwatch/bus"
+	"packwatch/config"
+	"packwatch/record"
+)
+
+// SourceNames lists a profile's source names by index.
+func SourceNames(p *config.Profile) []string {
+	out := make([]string, len(p.Sources))
+	for i, s := range p.Sources {
+		out[i] = s.Name
+	}
+	return out
+}
+
+// RunCapture feeds a capture file ("-" reads standard input) through a
+// Collector into eng and returns the checked window: the whole capture, or
+// its last `last` of data time (the engine still sees everything before,
+// which builds counted charge and trip timers). Malformed lines are counted,
+// reported to onErr (if set) and skipped.
+func RunCapture(ctx context.Context, eng Engine, packID string, p *config.Profile, path string, last time.Duration, onErr func(*bus.CaptureError)) (Window, Raw, DataInfo, error) {
+	info := DataInfo{Mode: ModeCapture, Source: "capture " + path}
+	var data []byte
+	var err error
+	if path == "-" {
+		data, err = io.ReadAll(os.Stdin)
+	} else {
+		data, err = os.ReadFile(path)
+	}
+	if err != nil {
+		return Window{}, Raw{}, info, fmt.Errorf("read capture: %w", err)
+	}
+	names := SourceNames(p)
+	resolve := func(name string) (int, bool) {
+		for i, n := range names {
+			if n == name {
+				return i, true
+			}
+		}
+		return 0, false
+	}
+	var from int64
+	if last > 0 {
+		cr := bus.NewCaptureReader(bytes.NewReader(data), resolve)
+		end, seen := int64(0), false
+		for cr.Scan() {
+			if t := cr.Message().T; !seen || t > end {
+				end, seen = t, true
+			}
+		}
+		if err := cr.Err(); err != nil {
+			return Window{}, Raw{}, info, fmt.Errorf("read capture %s: %w", path, err)
+		}
+		if seen {
+			from = end - int64(last)
+		}
+	}
+	col := NewCollector(eng, packID, names, from, 0)
+	cr := bus.NewCaptureReader(bytes.NewReader(data), resolve)
+	cr.OnError = onErr
+	batch := make([]bus.Message, 0, 256)
+	for cr.Scan() {
+		batch = append(batch, cr.Message())
+		if len(batch) == cap(batch) {
+			col.Deliver(batch)
+			batch = batch[:0]
+			if err := ctx.Err(); err != nil {
+				return Window{}, Raw{}, info, err
+			}
+		}
+	}
+	col.Deliver(batch)
+	if err := cr.Err(); err != nil {
+		return Window{}, Raw{}, info, fmt.Errorf("read capture %s: %w", path, err)
+	}
+	info.Malformed = cr.Malformed
+	w, raw := col.Finish()
+	return w, raw, info, nil
+}
+
+// RecordingSources maps a recording's source indexes to the profile's
+// (-1 where the profile has no source of that name), for
+// pack.Engine.AddPack, and gives the recording's source names by index.
+func RecordingSources(meta record.Meta, p *config.Profile) (srcMap []int, names []string) {
+	n := 0
+	for _, s := range meta.Sources {
+		if int(s.Index)+1 > n {
+			n = int(s.Index) + 1
+		}
+	}
+	srcMap = make([]int, n)
+	names = make([]string, n)
+	for i := range srcMap {
+		srcMap[i] = -1
+	}
+	for _, s := range meta.Sources {
+		names[s.Index] = s.Name
+		for j, ps := range p.Sources {
+			if ps.Name == s.Name {
+				srcMap[s.Index] = j
+			}
+		}
+	}
+	return srcMap, names
+}
+
+// RunRecording replays a recording into eng (whose pack must be added with
+// the map from RecordingSources) and returns the checked window: the whole
+// recording or its last `last` of data time.
+func RunRecording(ctx context.Context, eng Engine, packID string, rec *record.Reader, names []string, last time.Duration) (Window, Raw, DataInfo, error) {
+	meta := rec.Meta()
+	info := DataInfo{Mode: ModeReplay, Source: "recording " + rec.Path(), Simulated: meta.Mode == "simulated"}
+	first, end, ok, err := rec.Span()
+	if err != nil {
+		return Window{}, Raw{}, info, err
+	}
+	if !ok {
+		w, raw := NewCollector(eng, packID, names, 0, 0).Finish()
+		return w, raw, info, nil
+	}
+	var from int64
+	if last > 0 {
+		from = end - int64(last)
+	}
+	col := NewCollector(eng, packID, names, from, 0)
+	err = rec.Scan(ctx, first, end+1, func(batch []bus.Message) error {
+		col.Deliver(batch)
+		return ctx.Err()
+	})
+	if err != nil {
+		return Window{}, Raw{}, info, fmt.Errorf("replay %s: %w", rec.Path(), err)
+	}
+	w, raw := col.Finish()
+	return w, raw, info, nil
+}
