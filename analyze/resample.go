@@ -1,0 +1,66 @@
+package analyze
+
+import "math"
+
+// ResampleByCharge turns voltage readings into voltage against charge at a
+// fixed step. chT/chQ is the charge moved (Ah, non-decreasing) at the
+// current readings' times; vT/vV are the voltage readings, each at its own
+// time. Each voltage reading gets the charge interpolated to its time; the
+// pairs are then interpolated linearly at Q = k·step for every k whose Q
+// lies within the pairs. A pair whose charge is below an earlier one (regen
+// inside a discharge) is skipped, so Q never goes back.
+//
+// Because the charge is taken at each reading's own time, the result does
+// not depend on how the current varied: a voltage that is a function of
+// charge alone comes back the same at any current profile.
+func ResampleByCharge(chT, chQ, vT, vV []float64, step float64) (q, v []float64) {
+	if len(chT) == 0 || len(vT) == 0 || step <= 0 {
+		return nil, nil
+	}
+	pq, pv := chargePairs(chT, chQ, vT, vV)
+	if len(pq) < 2 {
+		return nil, nil
+	}
+	first := math.Ceil(pq[0]/step-1e-9) * step
+	j := 0
+	for g := first; g <= pq[len(pq)-1]+1e-12; g = first + float64(len(q))*step {
+		for j+1 < len(pq) && pq[j+1] < g {
+			j++
+		}
+		var val float64
+		if j+1 < len(pq) {
+			val = lerp(pq[j], pv[j], pq[j+1], pv[j+1], g)
+		} else {
+			val = pv[j]
+		}
+		q = append(q, g)
+		v = append(v, val)
+	}
+	return q, v
+}
+
+// chargePairs gives each voltage reading within the charge readings' span
+// the charge interpolated to its own time, skipping readings whose charge
+// falls below an earlier one.
+func chargePairs(chT, chQ, vT, vV []float64) (pq, pv []float64) {
+	if len(chT) == 0 {
+		return nil, nil
+	}
+	ch := cursor{tr: &Trace{T: chT, V: chQ}}
+	pq = make([]float64, 0, len(vT))
+	pv = make([]float64, 0, len(vT))
+	top := math.Inf(-1)
+	for k, t := range vT {
+		if t < chT[0] || t > chT[len(chT)-1] {
+			continue
+		}
+		qq, _ := ch.at(t)
+		if qq < top {
+			continue
+		}
+		top = qq
+		pq = append(pq, qq)
+		pv = append(pv, vV[k])
+	}
+	return pq, pv
+}
