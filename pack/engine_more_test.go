@@ -3,7 +3,9 @@ package pack
 import (
 	"math"
 	"strings"
+	"sync"
 	"testing"
+	"time"
 
 	"packwatch/bus"
 	"packwatch/config"
@@ -256,4 +258,49 @@ func TestFloorTo(t *testing.T) {
 		}
 	}
 	_ = math.Pi
+}
+
+// Sources deliver from their own goroutines while the hub takes snapshots:
+// run with -race. Every message must be counted once.
+func TestEngineConcurrent(t *testing.T) {
+	e := newTestEngine(t, "")
+	const perSource, batch = 200, 10
+	done := make(chan struct{})
+	var wg sync.WaitGroup
+	for g := range 2 {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			buf := make([]bus.Message, batch)
+			for k := range perSource {
+				for i := range buf {
+					buf[i] = canMsg(epoch+int64(k*batch+i)*ms, uint32(0x100+g), 1, 2, 3)
+				}
+				e.Deliver(buf)
+			}
+		}()
+	}
+	stop := make(chan struct{})
+	go func() {
+		defer close(done)
+		for {
+			select {
+			case <-stop:
+				return
+			default:
+			}
+			e.Snapshot(time.Unix(0, 0))
+			e.BusView()
+		}
+	}()
+	wg.Wait()
+	close(stop)
+	<-done
+	if n := snapMessages(e); n != 2*perSource*batch {
+		t.Errorf("%d messages counted, want %d", n, 2*perSource*batch)
+	}
+}
+
+func snapMessages(e *Engine) uint64 {
+	return e.Snapshot(time.Unix(0, 0)).Packs[0].Sources[0].Messages
 }
