@@ -71,6 +71,7 @@ func runRecord(ctx context.Context, args []string, stdout, stderr io.Writer) int
 	}
 	fmt.Fprintf(stdout, "recording %s to %s; Ctrl-C stops\n", p.Pack.Name, *out)
 	err = s.runDevices(ctx)
+	s.stats.flush()
 	if cerr := rec.Close(); cerr != nil && err == nil {
 		err = cerr
 	}

@@ -45,6 +45,7 @@ type session struct {
 	mode    string
 	log     *slog.Logger
 	mu      sync.Mutex // guards each packEntry's prof and m (reload swaps them)
+	stats   *statsRecorder
 }
 
 // newSession builds the engine for the given profiles. Devices used by
@@ -73,8 +74,10 @@ func newSession(profiles []*config.Profile, maps []*decode.Map, mode string, rec
 func newSessionOn(devices []device, byName bool, profiles []*config.Profile, maps []*decode.Map, mode string, rec *record.Writer, log *slog.Logger) (*session, error) {
 	s := &session{mode: mode, rec: rec, log: log, devices: devices}
 	opt := pack.Options{Mode: mode}
+	var stats *statsRecorder
 	if rec != nil {
-		opt.RawSink = rec
+		stats = &statsRecorder{}
+		opt.RawSink = stats
 	}
 	s.eng = pack.NewEngine(opt)
 	ids := map[string]int{}
@@ -107,6 +110,10 @@ func newSessionOn(devices []device, byName bool, profiles []*config.Profile, map
 			return nil, err
 		}
 		s.packs = append(s.packs, e)
+	}
+	if stats != nil {
+		*stats = *newStatsRecorder(rec, s.packs)
+		s.stats = stats
 	}
 	return s, nil
 }
@@ -265,6 +272,9 @@ func runSessionWith(ctx context.Context, s *session, f *serveFlags, mode string,
 		return nil
 	})
 	err = g.Wait()
+	if s.stats != nil {
+		s.stats.flush()
+	}
 	if s.rec != nil {
 		if cerr := s.rec.Close(); cerr != nil && err == nil {
 			err = fmt.Errorf("close recording: %w", cerr)

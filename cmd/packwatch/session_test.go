@@ -10,6 +10,7 @@ import (
 	"os"
 	"path/filepath"
 	"regexp"
+	"slices"
 	"strings"
 	"sync"
 	"testing"
@@ -18,6 +19,7 @@ import (
 	"packwatch/config"
 	"packwatch/decode"
 	"packwatch/pack"
+	"packwatch/record"
 )
 
 func mustLoad(t *testing.T, path string) (*config.Profile, *decode.Map) {
@@ -191,5 +193,85 @@ func TestDemo(t *testing.T) {
 		}
 	case <-time.After(15 * time.Second):
 		t.Fatal("demo did not stop after cancel")
+	}
+}
+
+// startCLI runs a command in the background and waits until it prints its URL.
+func startCLI(t *testing.T, ctx context.Context, args ...string) (url string, out, errb *syncBuffer, code chan int) {
+	t.Helper()
+	out, errb, code = &syncBuffer{}, &syncBuffer{}, make(chan int, 1)
+	go func() { code <- run(ctx, args, out, errb) }()
+	re := regexp.MustCompile(`http://127\.0\.0\.1:\d+/`)
+	deadline := time.Now().Add(30 * time.Second)
+	for url == "" && time.Now().Before(deadline) {
+		select {
+		case c := <-code:
+			t.Fatalf("%v exited %d: %s", args, c, errb.String())
+		case <-time.After(20 * time.Millisecond):
+		}
+		url = re.FindString(out.String())
+	}
+	if url == "" {
+		t.Fatalf("%v printed no URL: %s", args, errb.String())
+	}
+	return url, out, errb, code
+}
+
+// waitState polls /api/state until cond holds.
+func waitState(t *testing.T, url string, cond func(*pack.Snapshot) bool) *pack.Snapshot {
+	t.Helper()
+	deadline := time.Now().Add(30 * time.Second)
+	for time.Now().Before(deadline) {
+		var snap pack.Snapshot
+		if resp, err := http.Get(url + "api/state"); err == nil {
+			json.NewDecoder(resp.Body).Decode(&snap)
+			resp.Body.Close()
+			if cond(&snap) {
+				return &snap
+			}
+		}
+		time.Sleep(20 * time.Millisecond)
+	}
+	t.Fatal("condition on /api/state not reached")
+	return nil
+}
+
+// TestDemoRecordReplay: a demo session recorded, then replayed through the
+// same dashboard path, and exported.
+func TestDemoRecordReplay(t *testing.T) {
+	db := filepath.Join(t.TempDir(), "demo.db")
+	ctx, cancel := context.WithCancel(context.Background())
+	url, _, errb, code := startCLI(t, ctx, "demo", "--addr", "127.0.0.1:0", "--speed", "200", "--record", db)
+	first := waitState(t, url, func(s *pack.Snapshot) bool { return len(s.Packs) == 1 && s.Packs[0].CellStats.Reporting == 12 })
+	waitState(t, url, func(s *pack.Snapshot) bool { return float64(s.DataT) > float64(first.DataT)+5 })
+	cancel()
+	if c := <-code; c != 0 {
+		t.Fatalf("demo exit %d: %s", c, errb.String())
+	}
+	r, err := record.Open(db)
+	if err != nil {
+		t.Fatal(err)
+	}
+	binds, err := r.Binds()
+	r.Close()
+	if err != nil || !slices.Contains(binds, "cell[7].voltage") {
+		t.Errorf("decimated chart table lacks cell[7].voltage: %v %v", binds, err)
+	}
+	code2, out, errOut := runCLI(t, "export", db, "--every", "1s", "--bind", "cell[7].voltage")
+	rows := strings.Count(out, "\n")
+	if code2 != 0 || rows < 5 {
+		t.Fatalf("export: code %d, %d rows: %s", code2, rows, errOut)
+	}
+
+	ctx2, cancel2 := context.WithCancel(context.Background())
+	defer cancel2()
+	url, _, errb, code = startCLI(t, ctx2, "replay", db, "--speed", "max", "--addr", "127.0.0.1:0")
+	snap := waitState(t, url, func(s *pack.Snapshot) bool { return len(s.Packs) == 1 && s.Packs[0].CellStats.Reporting == 12 })
+	if snap.Mode != "replay" {
+		t.Errorf("replay mode = %q", snap.Mode)
+	}
+	cancel2()
+	if c := <-code; c != 0 {
+		t.Fatalf("replay exit %d: %s", c, errb.String())
 	}
 }
