@@ -162,6 +162,12 @@ func simulate(ctx context.Context, a simulateArgs, stdout, stderr io.Writer) err
 	topt := sim.TargetOptions{Names: names, Start: opt.Start.UnixNano(), Rate: a.rate, Stop: cancel, Ctx: ctx}
 	if a.rate > 0 {
 		topt.For = a.forD
+		if kind == "capture" {
+			// a file needs no pacing: the restamped times say the rate
+			var virtual time.Time
+			topt.Now = func() time.Time { return virtual }
+			topt.Sleep = func(_ context.Context, d time.Duration) error { virtual = virtual.Add(d); return nil }
+		}
 	}
 	var w io.Writer
 	var closeTarget func() error
