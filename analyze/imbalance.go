@@ -94,10 +94,20 @@ func CellImbalance(s *Session) Imbalance {
 		absDrift = append(absDrift, math.Abs(float64(d.Drift)))
 		out.Cells = append(out.Cells, d)
 	}
-	med := median(absDrift)
+	// a cell drifts when its drift stands out from the others' (more than
+	// 10 mV and 3 robust standard deviations from their median)
+	drifts := make([]float64, len(out.Cells))
+	for c := range out.Cells {
+		drifts[c] = float64(out.Cells[c].Drift)
+	}
+	med := median(drifts)
+	for c := range absDrift {
+		absDrift[c] = math.Abs(drifts[c] - med)
+	}
+	mad := 1.4826 * median(absDrift)
 	for c := range out.Cells {
 		d := float64(out.Cells[c].Drift)
-		if math.Abs(d) > 0.010 && math.Abs(d) > 3*med {
+		if math.Abs(d-med) > 0.010 && math.Abs(d-med) > 3*mad {
 			out.Cells[c].Drifting = true
 			out.Flags = append(out.Flags, fmt.Sprintf("cell %d drifted %+.0f mV from the average over the session", c+1, d*1000))
 		}

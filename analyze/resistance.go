@@ -152,11 +152,14 @@ func measureStep(s *Session, k int, opt StepOptions, deadband float64) (Step, st
 		sum += tr.V[q]
 	}
 	ib := sum / float64(k-i0)
-	// the new level: the current 0.5 s in, or the reading after the step
+	// the new level: of the readings in the first 0.5 s, the one farthest
+	// from the old level (a BMS may ramp its reading over a few frames)
 	iaT := ta
 	ia := tr.V[k]
-	if v, ok := tr.At(ta + 0.5); ok && ta+0.5 <= tr.T[len(tr.T)-1] {
-		ia = v
+	for m := k + 1; m < tr.Len() && tr.T[m] <= ta+0.5; m++ {
+		if math.Abs(tr.V[m]-ib) > math.Abs(ia-ib) {
+			ia = tr.V[m]
+		}
 	}
 	di := ia - ib
 	if math.Abs(di) < opt.MinStepA {
