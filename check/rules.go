@@ -255,18 +255,19 @@ func ruleCellMargins(w Window, s Settings) (lo, hi RuleResult) {
 		switch {
 		case margin < req.Value:
 			r.Status = Fail
-			r.Reason = fmt.Sprintf("cell %d at %s %s is only %s from %s; needs %s", e.n, fmtV(e.v), at(&w, e.t), fmtV(margin), bound, fmtV(req.Value))
+			r.Reason = fmt.Sprintf("cell %d at %s %s is only %s %s; needs %s", e.n, fmtV(e.v), at(&w, e.t), fmtV(margin), bound, fmtV(req.Value))
 		case len(missing) > 0:
 			r.Status = NoData
 			r.Reason = fmt.Sprintf("cell(s) %s not reporting at the end; the others keep %s", strings.Join(missing, ", "), fmtV(margin))
 		default:
 			r.Status = Pass
-			r.Reason = fmt.Sprintf("every cell stayed at least %s from %s", fmtV(margin), bound)
+			r.Reason = fmt.Sprintf("every cell stayed at least %s %s", fmtV(margin), bound)
 		}
 		return r
 	}
 	lo = mk("cell_low_margin", "Margin to cell_low_v", mn, mn.v-s.CellLowV, "above cell_low_v "+fmtV(s.CellLowV))
 	hi = mk("cell_high_margin", "Margin to cell_high_v", mx, s.CellHighV-mx.v, "below cell_high_v "+fmtV(s.CellHighV))
+
 	return lo, hi
 }
 
@@ -305,6 +306,9 @@ func ruleSpread(w Window, s Settings) RuleResult {
 	}
 	r.Value = nump(worst)
 	r.Measured = fmt.Sprintf("%s (cell %d to cell %d)", fmtV(worst), wlo, whi)
+	if wlo == whi {
+		r.Measured = fmtV(worst) + " (all cells read alike)"
+	}
 	missing := notFreshCells(l)
 	switch {
 	case worst > req.Value:

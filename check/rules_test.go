@@ -101,7 +101,7 @@ func TestRules(t *testing.T) {
 		}, "reporting", NoData, "no cell or sensor"},
 
 		// 3.841 V lowest: margin 0.841 V to 3.0 V (arithmetic).
-		{"low margin pass", nil, "cell_low_margin", Pass, "0.841 V from above cell_low_v"},
+		{"low margin pass", nil, "cell_low_margin", Pass, "0.841 V above cell_low_v"},
 		{"low margin fail", func(i int, p *pack.PackSnapshot) {
 			if i == 3 {
 				p.Cells[1].V = np(3.08) // 0.080 V above 3.000 V, 0.1 V needed
