@@ -250,4 +250,3 @@ func (d *tcpDriver) Replug(t *testing.T) {
 	d.mu.Unlock()
 }
 func (d *tcpDriver) Close() { d.server().Close() }
-

@@ -109,6 +109,12 @@ func TestSerialFollowsRenamedDevice(t *testing.T) {
 		return bus.PortInfo{Name: name, USB: true, VID: "ABCD", PID: "1234", Serial: "BENCH1", Product: "test adapter"}
 	}
 	for _, byPath := range []bool{false, true} {
+		t.Run(map[bool]string{false: "usb-name", true: "path"}[byPath], func(t *testing.T) { followRenamed(t, byPath, usb) })
+	}
+}
+
+func followRenamed(t *testing.T, byPath bool, usb func(string) bus.PortInfo) {
+	{
 		first, second := newPtyDev(t), newPtyDev(t)
 		if first.slaveName() == second.slaveName() {
 			t.Fatal("ptys share a name")
@@ -166,6 +172,12 @@ func TestSerialWrongBaudHint(t *testing.T) {
 		garbage[i] = byte(rng.UintN(256))
 	}
 	for _, kind := range []string{bus.KindSerialText, bus.KindSerialCAN} {
+		t.Run(kind, func(t *testing.T) { wrongBaud(t, kind, garbage) })
+	}
+}
+
+func wrongBaud(t *testing.T, kind string, garbage []byte) {
+	{
 		p := newPtyDev(t)
 		spec := testSpec(kind, p.link)
 		spec.Quiet = 300 * time.Millisecond
