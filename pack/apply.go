@@ -49,8 +49,9 @@ func (ps *packState) update(s int32, ids *uint64) {
 	v := ps.v
 	t, flag, val := v.T[s], v.Flag[s], v.V[s]
 	ps.updates++
-	if isFault := flag == decode.FlagFault; isFault != ps.fault[s] {
-		ps.fault[s] = isFault
+	h := &ps.hot[s]
+	if isFault := flag == decode.FlagFault; isFault != h.fault {
+		h.fault = isFault
 		if isFault {
 			ps.faults++
 			ps.openFault(s, t, val, ids)
@@ -58,7 +59,7 @@ func (ps *packState) update(s int32, ids *uint64) {
 			ps.closeFault(s)
 		}
 	}
-	switch ps.role[s] {
+	switch h.role {
 	case roleCurrent:
 		if flag != decode.FlagOK {
 			ps.counter.Break()
@@ -90,18 +91,18 @@ func (ps *packState) update(s int32, ids *uint64) {
 	}
 	// The slot's checks sit together in ps.checks; the reading is fresh.
 	ok := flag == decode.FlagOK
-	if ok && ps.notOK[s] == 0 {
+	if ok && h.notOK == 0 {
 		ch := 0
 		if ps.charging {
 			ch = 1
 		}
-		if b := &ps.band[s][ch]; val >= b[0] && val <= b[1] {
+		if b := &h.band[ch]; val >= b[0] && val <= b[1] {
 			// Every check ok and staying ok: nothing changes. c.value is
 			// only read for checks off ok (runDue, trip alarms).
 			return
 		}
 	}
-	for k := ps.slotChecks[s]; k < ps.slotChecks[s+1]; k++ {
+	for k := h.ck0; k < h.ck1; k++ {
 		c := &ps.checks[k]
 		if !ok {
 			c.value = nan
@@ -166,9 +167,9 @@ func (ps *packState) stepCheck(c *check, margin float64, t int64, ids *uint64) {
 	ev := c.tr.Step(margin, t, r)
 	if isOK := c.tr.Level == LevelOK; isOK != wasOK && c.slot >= 0 {
 		if isOK {
-			ps.notOK[c.slot]--
+			ps.hot[c.slot].notOK--
 		} else {
-			ps.notOK[c.slot]++
+			ps.hot[c.slot].notOK++
 		}
 	}
 	switch ev {

@@ -175,7 +175,7 @@ func (ps *packState) readingState(s int32, now int64) string {
 		return "stale"
 	}
 	lv := LevelOK
-	for k := ps.slotChecks[s]; k < ps.slotChecks[s+1]; k++ {
+	for k := ps.hot[s].ck0; k < ps.hot[s].ck1; k++ {
 		c := &ps.checks[k]
 		if c.tr.Level > lv {
 			lv = c.tr.Level

@@ -88,6 +88,19 @@ const (
 	numTrends
 )
 
+// slotHot is what the per-update path needs of one slot, kept together so
+// that an update touches one cache line of it.
+type slotHot struct {
+	// band holds the readings inside every check's warn margin, [1] while
+	// charging and [0] otherwise: a reading in the band while no check of
+	// the slot is off ok changes nothing.
+	band     [2][2]float64
+	ck0, ck1 int32 // the slot's checks are checks[ck0:ck1]
+	notOK    int32 // checks of the slot not at ok
+	role     role
+	fault    bool // the latest reading was a sensor fault
+}
+
 // packState is one pack: its map, readings, checks, counter and alarms.
 // Every method runs under the engine's lock.
 type packState struct {
@@ -99,7 +112,6 @@ type packState struct {
 	srcMap []int // engine source → profile source; nil = identity
 	nsrc   int
 
-	role       []role
 	cellSlot   []int32 // by cell number − 1, −1 none
 	balSlot    []int32
 	tempSlot   []int32 // by sensor number − 1
@@ -110,19 +122,13 @@ type packState struct {
 	socSlot    int32
 	serialSlot int32
 	chargeVSlt int32
-	fault      []bool  // per slot: the latest reading was a sensor fault
 	staleNs    []int64 // per slot: 3 × its interval, 0 = never stale
 
-	lim        [numLimits]limitSpec
-	checks     []check
-	slotChecks []int32          // per slot: its checks are checks[slotChecks[s]:slotChecks[s+1]]
-	aggCheck   [numLimits]int32 // aggregate checks by limit, −1 none
-	// Per slot, the band of readings inside every check's warn margin
-	// (band[s][1] while charging, [0] otherwise) and how many of its checks
-	// are not at ok: a reading in the band with none off ok changes nothing.
-	band    [][2][2]float64
-	notOK   []int32
-	nextDue int64
+	lim      [numLimits]limitSpec
+	checks   []check
+	aggCheck [numLimits]int32 // aggregate checks by limit, −1 none
+	hot      []slotHot        // per slot: what the per-update path needs, in one place
+	nextDue  int64
 
 	aggPeriod int64
 	nextAgg   int64
@@ -157,7 +163,7 @@ func newPackState(id string, m *decode.Map, srcMap []int) *packState {
 	slots := m.Slots()
 	ps := &packState{
 		id: id, m: m, prof: p, v: decode.NewValues(m), slots: slots, srcMap: srcMap,
-		nsrc: len(p.Sources), role: make([]role, len(slots)), fault: make([]bool, len(slots)),
+		nsrc: len(p.Sources), hot: make([]slotHot, len(slots)),
 		staleNs: make([]int64, len(slots)),
 		curSlot: -1, voltSlot: -1, socSlot: -1, serialSlot: -1, chargeVSlt: -1, curSrc: -1,
 		nextDue: never,
@@ -194,28 +200,28 @@ func newPackState(id string, m *decode.Map, srcMap []int) *packState {
 		switch b.Kind {
 		case config.BindCellVoltage:
 			if b.Index >= 1 && b.Index <= cells {
-				ps.role[i], ps.cellSlot[b.Index-1] = roleCell, si
+				ps.hot[i].role, ps.cellSlot[b.Index-1] = roleCell, si
 				aggNs = max(aggNs, s.IntervalNs)
 			}
 		case config.BindCellBalancing:
 			if b.Index >= 1 && b.Index <= cells {
-				ps.role[i], ps.balSlot[b.Index-1] = roleBalancing, si
+				ps.hot[i].role, ps.balSlot[b.Index-1] = roleBalancing, si
 			}
 		case config.BindTemp:
 			if b.Index >= 1 {
-				ps.role[i], ps.tempSlot[b.Index-1] = roleTemp, si
+				ps.hot[i].role, ps.tempSlot[b.Index-1] = roleTemp, si
 			}
 		case config.BindPackCurrent:
-			ps.role[i], ps.curSlot, ps.curSrc = roleCurrent, si, s.Src
+			ps.hot[i].role, ps.curSlot, ps.curSrc = roleCurrent, si, s.Src
 		case config.BindPackVoltage:
-			ps.role[i], ps.voltSlot = roleVoltage, si
+			ps.hot[i].role, ps.voltSlot = roleVoltage, si
 		case config.BindPackSOC:
-			ps.role[i], ps.socSlot = roleSOC, si
+			ps.hot[i].role, ps.socSlot = roleSOC, si
 		case config.BindPackSerial:
-			ps.role[i], ps.serialSlot = roleSerial, si
+			ps.hot[i].role, ps.serialSlot = roleSerial, si
 		case config.BindBMS:
 			if b.Name == "charge_voltage_v" {
-				ps.role[i], ps.chargeVSlt = roleChargeV, si
+				ps.hot[i].role, ps.chargeVSlt = roleChargeV, si
 			}
 		}
 	}
@@ -265,12 +271,12 @@ func filled(n int, v int32) []int32 {
 }
 
 // buildChecks lays out the checks: first the per-reading checks grouped by
-// slot in slot order (the per-update path walks checks[slotChecks[s]:
-// slotChecks[s+1]]), then the aggregates.
+// slot in slot order (the per-update path walks checks[ck0:ck1] of the
+// slot), then the aggregates, and works out each slot's ok band.
 func (ps *packState) buildChecks() {
 	per := make([][]LimitID, len(ps.slots))
 	for i := range ps.slots {
-		switch ps.role[i] {
+		switch ps.hot[i].role {
 		case roleCell:
 			per[i] = []LimitID{LimCellHigh, LimCellLow}
 		case roleTemp:
@@ -281,9 +287,8 @@ func (ps *packState) buildChecks() {
 			per[i] = []LimitID{LimChargeCurrent, LimDischargeCurrent}
 		}
 	}
-	ps.slotChecks = make([]int32, len(ps.slots)+1)
 	for i := range ps.slots {
-		ps.slotChecks[i] = int32(len(ps.checks))
+		ps.hot[i].ck0 = int32(len(ps.checks))
 		for _, l := range per[i] {
 			if !ps.lim[l].set {
 				continue
@@ -291,13 +296,12 @@ func (ps *packState) buildChecks() {
 			ps.checks = append(ps.checks, check{spec: ps.lim[l], lim: l, slot: int32(i), subj: int32(ps.slots[i].Bind.Index), value: nan,
 				charge: l == LimChargeTempLow || l == LimChargeTempHigh})
 		}
+		ps.hot[i].ck1 = int32(len(ps.checks))
 	}
-	ps.slotChecks[len(ps.slots)] = int32(len(ps.checks))
-	ps.band = make([][2][2]float64, len(ps.slots))
 	for i := range ps.slots {
 		for ch := range 2 {
 			lo, hi := math.Inf(-1), math.Inf(1)
-			for k := ps.slotChecks[i]; k < ps.slotChecks[i+1]; k++ {
+			for k := ps.hot[i].ck0; k < ps.hot[i].ck1; k++ {
 				c := &ps.checks[k]
 				if c.charge && ch == 0 {
 					continue
@@ -308,7 +312,7 @@ func (ps *packState) buildChecks() {
 					lo = max(lo, c.spec.bound+c.spec.rule.Warn)
 				}
 			}
-			ps.band[i][ch] = [2]float64{lo, hi}
+			ps.hot[i].band[ch] = [2]float64{lo, hi}
 		}
 	}
 	for i := range ps.aggCheck {
@@ -324,10 +328,12 @@ func (ps *packState) buildChecks() {
 
 // recount works out notOK from the checks' levels.
 func (ps *packState) recount() {
-	ps.notOK = make([]int32, len(ps.slots))
+	for i := range ps.hot {
+		ps.hot[i].notOK = 0
+	}
 	for i := range ps.checks {
 		if c := &ps.checks[i]; c.slot >= 0 && c.tr.Level != LevelOK {
-			ps.notOK[c.slot]++
+			ps.hot[c.slot].notOK++
 		}
 	}
 }
@@ -360,7 +366,7 @@ func (ps *packState) swapped(m *decode.Map) *packState {
 			continue
 		}
 		np.v.V[j], np.v.Raw[j], np.v.T[j], np.v.Flag[j] = ps.v.V[i], ps.v.Raw[i], ps.v.T[i], ps.v.Flag[i]
-		np.fault[j] = ps.fault[i]
+		np.hot[j].fault = ps.hot[i].fault
 	}
 	for i := range np.v.Src {
 		if i >= len(ps.v.Src) {
