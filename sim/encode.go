@@ -212,15 +212,27 @@ type Reading struct {
 	Raw bool
 }
 
-// Frame builds frame message fm from the readings (indexed by slot).
-func (e *Encoder) frame(fm *frameMsg, r []Reading) can.Frame {
+// Readings holds a Reading per slot of a compiled profile, indexed like
+// decode.Map.Slots.
+type Readings []Reading
+
+func (r Readings) reading(slot int) Reading { return r[slot] }
+
+// readingSource gives the reading of a slot: a Readings slice, or the
+// simulator's reporter, which computes each slot only when it is encoded.
+type readingSource interface {
+	reading(slot int) Reading
+}
+
+// frame builds frame message fm from the readings.
+func (e *Encoder) frame(fm *frameMsg, r readingSource) can.Frame {
 	var data [8]byte
 	if fm.hasMux {
 		decode.Insert(&data, fm.muxL, uint64(fm.mux))
 	}
 	for i := range fm.fields {
 		ef := &fm.fields[i]
-		decode.Insert(&data, ef.f.Layout, ef.raw(r[ef.slot]))
+		decode.Insert(&data, ef.f.Layout, ef.raw(r.reading(ef.slot)))
 	}
 	return can.Frame{ID: fm.id, IsExtended: fm.ext, Length: fm.length, Data: data}
 }
@@ -276,13 +288,13 @@ func signExtend(raw uint64, f *config.CANField) int64 {
 }
 
 // lineText writes one line instance from the readings.
-func (e *Encoder) lineText(ls *lineSched, inst *lineInst, r []Reading) (string, error) {
+func (e *Encoder) lineText(ls *lineSched, inst *lineInst, r readingSource) (string, error) {
 	fill := make(map[int]string, len(inst.fields)+1)
 	for _, lf := range inst.fields {
 		if lf.f.IndexGroup >= 0 {
 			fill[lf.f.IndexGroup] = strconv.Itoa(inst.idx)
 		}
-		rd := r[lf.slot]
+		rd := r.reading(lf.slot)
 		num := (rd.Value - lf.f.Offset) / lf.f.Scale
 		if rd.Raw {
 			num = rd.Value
@@ -335,10 +347,14 @@ func formatFor(g *lineGen, group int, num float64) (string, bool) {
 }
 
 // Next appends to dst every message due at or before t (ns from the start),
-// in time order per entry, from the readings (indexed by slot). The messages'
-// T is the time they were due plus start. A line the encoder cannot write
-// for a value is skipped and counted in *errs.
-func (e *Encoder) Next(dst []bus.Message, t, start int64, r []Reading, errs *int) []bus.Message {
+// in time order per entry, from the readings. The messages' T is the time
+// they were due plus start. A line the encoder cannot write for a value is
+// skipped and counted in *errs.
+func (e *Encoder) Next(dst []bus.Message, t, start int64, r Readings, errs *int) []bus.Message {
+	return e.next(dst, t, start, r, errs)
+}
+
+func (e *Encoder) next(dst []bus.Message, t, start int64, r readingSource, errs *int) []bus.Message {
 	for k := range e.frames {
 		fs := &e.frames[k]
 		for fs.next <= t && len(fs.msgs) > 0 {
@@ -383,7 +399,7 @@ func (e *Encoder) NextDue() int64 {
 
 // Frames lists every frame message the encoder knows (one per ID and mux
 // value) built from the readings, for tests and load generators.
-func (e *Encoder) Frames(r []Reading) []bus.Message {
+func (e *Encoder) Frames(r Readings) []bus.Message {
 	var out []bus.Message
 	for k := range e.frames {
 		for i := range e.frames[k].msgs {
@@ -396,7 +412,7 @@ func (e *Encoder) Frames(r []Reading) []bus.Message {
 
 // Lines lists every console line the encoder writes (each instance of each
 // pattern) from the readings.
-func (e *Encoder) Lines(r []Reading) ([]bus.Message, error) {
+func (e *Encoder) Lines(r Readings) ([]bus.Message, error) {
 	var out []bus.Message
 	for k := range e.lines {
 		ls := &e.lines[k]

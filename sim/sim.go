@@ -71,7 +71,6 @@ type Sim struct {
 	fs       faultState
 	forced   map[int]float64
 	dirty    bool
-	readings []Reading
 	chgV     float64
 	silent   map[uint16]bool
 	garbage  bool
@@ -400,11 +399,11 @@ func (s *Sim) generate(until int64) {
 		}
 		s.garbageUpTo(due)
 		if s.dirty {
-			s.readings = s.rep.update(s.model, s.story.phase, &s.fs, s.forced, s.chgV)
+			s.rep.begin(s.model, s.story.phase, &s.fs, s.forced, s.chgV)
 			s.dirty = false
 		}
 		n := len(s.buf)
-		s.buf = s.enc.Next(s.buf, due, s.start, s.readings, &s.encErrs)
+		s.buf = s.enc.next(s.buf, due, s.start, s.rep, &s.encErrs)
 		if len(s.silent) > 0 {
 			kept := s.buf[:n]
 			for _, msg := range s.buf[n:] {

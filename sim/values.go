@@ -17,6 +17,16 @@ type reporter struct {
 	// code maps each enum slot's phase and fault names to raw codes.
 	stateCodes map[int][4]int64 // slot → codes for idle, charging, discharging, fault
 	readings   []Reading
+	stamp      []uint64 // epoch each reading was computed in
+	epoch      uint64
+	// the state of the current epoch
+	m        *Model
+	ph       Phase
+	fs       *faultState
+	forced   map[int]float64
+	chgV     float64
+	packVVal float64
+	packVOK  bool
 	// frozen holds values kept by stopped sensors and a stuck contactor.
 	frozen map[int]float64
 }
@@ -24,6 +34,7 @@ type reporter struct {
 func newReporter(m *decode.Map) *reporter {
 	r := &reporter{slots: m.Slots(), prof: m.Profile(), stateCodes: map[int][4]int64{}, frozen: map[int]float64{}}
 	r.readings = make([]Reading, len(r.slots))
+	r.stamp = make([]uint64, len(r.slots))
 	for i, s := range r.slots {
 		if s.Bind.Kind != config.BindBMSState {
 			continue
@@ -55,16 +66,32 @@ type faultState struct {
 	flag       bool
 }
 
-// update fills r.readings from the model. forced maps a cell (from 1) to a
-// reported voltage that overrides the model's.
-func (r *reporter) update(m *Model, ph Phase, fs *faultState, forced map[int]float64, chgV float64) []Reading {
-	packV := m.PackVoltage(m.I)
-	for i := range r.slots {
+// begin starts a new epoch: every slot is computed afresh from the model
+// the next time it is read. forced maps a cell (from 1) to a reported
+// voltage that overrides the model's. The arguments are kept until the next
+// begin.
+func (r *reporter) begin(m *Model, ph Phase, fs *faultState, forced map[int]float64, chgV float64) {
+	r.epoch++
+	r.m, r.ph, r.fs, r.forced, r.chgV = m, ph, fs, forced, chgV
+	r.packVOK = false
+}
+
+// reading gives a slot's reading in the current epoch (readingSource).
+func (r *reporter) reading(i int) Reading {
+	if r.stamp[i] != r.epoch {
 		s := &r.slots[i]
-		v, inv := r.value(s, i, m, ph, fs, forced, packV, chgV)
+		v, inv := r.value(s, i)
 		r.readings[i] = Reading{Value: v, Invalid: inv, Raw: s.Bind.Kind == config.BindBMSState}
+		r.stamp[i] = r.epoch
 	}
-	return r.readings
+	return r.readings[i]
+}
+
+func (r *reporter) packV() float64 {
+	if !r.packVOK {
+		r.packVVal, r.packVOK = r.m.PackVoltage(r.m.I), true
+	}
+	return r.packVVal
 }
 
 func b2f(b bool) float64 {
@@ -74,7 +101,8 @@ func b2f(b bool) float64 {
 	return 0
 }
 
-func (r *reporter) value(s *decode.Slot, slot int, m *Model, ph Phase, fs *faultState, forced map[int]float64, packV, chgV float64) (float64, bool) {
+func (r *reporter) value(s *decode.Slot, slot int) (float64, bool) {
+	m, ph, fs, forced, chgV := r.m, r.ph, r.fs, r.forced, r.chgV
 	b := s.Bind
 	n := b.Index
 	switch b.Kind {
@@ -82,17 +110,23 @@ func (r *reporter) value(s *decode.Slot, slot int, m *Model, ph Phase, fs *fault
 		if n < 1 || n > len(m.Cells) {
 			return 0, true
 		}
-		if v, ok := forced[n]; ok {
-			return v, false
+		if len(forced) > 0 {
+			if v, ok := forced[n]; ok {
+				return v, false
+			}
 		}
-		return m.Cells[n-1].Voltage(m.I) + fs.cellOffset[n], false
+		v := m.Cells[n-1].Voltage(m.I)
+		if len(fs.cellOffset) > 0 {
+			v += fs.cellOffset[n]
+		}
+		return v, false
 	case config.BindCellBalancing:
 		return 0, false
 	case config.BindTemp:
 		if n < 1 || n > len(m.Sensors) {
 			return 0, true
 		}
-		if fs.sensorStop[n] {
+		if len(fs.sensorStop) > 0 && fs.sensorStop[n] {
 			if _, ok := r.frozen[slot]; !ok {
 				r.frozen[slot] = m.Sensors[n-1].T
 			}
@@ -104,10 +138,10 @@ func (r *reporter) value(s *decode.Slot, slot int, m *Model, ph Phase, fs *fault
 	case config.BindStringCurrent:
 		return m.I, false
 	case config.BindPackVoltage:
-		return packV, false
+		return r.packV(), false
 	case config.BindLinkVoltage:
 		if m.Contactor {
-			return packV, false
+			return r.packV(), false
 		}
 		return 0, false
 	case config.BindPackSOC:
@@ -164,7 +198,7 @@ func (r *reporter) value(s *decode.Slot, slot int, m *Model, ph Phase, fs *fault
 			return 0, false
 		}
 		if b.Name == "voltage" {
-			return packV, false
+			return r.packV(), false
 		}
 		return m.I, false
 	case config.BindFault:
