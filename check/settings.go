@@ -45,9 +45,10 @@ type Settings struct {
 //
 //   - min_soc_pct 20 %: a pack sent out below a fifth of its charge leaves
 //     little for the return (common practice, no source);
-//   - max_spread_v 0.100 V without a spread limit: more than 100 mV between
-//     cells of a resting pack points to a weak or unbalanced cell (common
-//     practice, no source);
+//   - max_spread_v at most 0.050 V: more than 50 mV between the cells of a
+//     resting pack points to a weak or unbalanced cell, whatever the spread
+//     limit of the protection (which guards the pack under load) allows
+//     (common practice, no source);
 //   - max_rest_current_a: C/50 (2 % of capacity_ah per hour), at least
 //     0.5 A: a pack that is to rest draws no more (our choice);
 //   - discharge window −20…60 °C and charge window 0…45 °C without limits:
@@ -56,7 +57,7 @@ type Settings struct {
 //     (their period_ms), per source (our choice).
 const (
 	DefaultMinSOCPct      = 20.0
-	DefaultMaxSpreadV     = 0.100
+	DefaultMaxSpreadV     = 0.050
 	DefaultRestCRate      = 0.02
 	DefaultMinRestCurrent = 0.5
 	DefaultTempLowC       = -20.0
@@ -99,7 +100,11 @@ func Resolve(p *config.Profile) Settings {
 		if ok(w.SpreadV) {
 			sw, from = *w.SpreadV, fmt.Sprintf("[limits] spread_v %.3g V less [warn] spread_v", *l.SpreadV)
 		}
-		s.MaxSpreadV = pick("max_spread_v", "V", c.MaxSpreadV, *l.SpreadV-sw, from)
+		v := *l.SpreadV - sw
+		if v > DefaultMaxSpreadV {
+			v, from = DefaultMaxSpreadV, fmt.Sprintf("packwatch's resting maximum, tighter than [limits] spread_v %.3g V less its warning band", *l.SpreadV)
+		}
+		s.MaxSpreadV = pick("max_spread_v", "V", c.MaxSpreadV, v, from)
 	} else {
 		s.MaxSpreadV = pick("max_spread_v", "V", c.MaxSpreadV, DefaultMaxSpreadV, "packwatch default (no spread limit)")
 	}
