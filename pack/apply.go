@@ -21,7 +21,10 @@ func (ps *packState) apply(msg *bus.Message, ids *uint64) {
 		return
 	}
 	t := msg.T
-	if t >= ps.nextAgg {
+	// Data time reaching the next grid point runs the aggregate tick; data
+	// time stepping back more than a second behind the last tick (a source
+	// restarted its clock) restarts the grid there.
+	if t >= ps.nextAgg || t < ps.nextAgg-ps.aggPeriod-secondNs {
 		ps.tick(t, ids)
 	}
 	if t >= ps.nextDue {

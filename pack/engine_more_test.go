@@ -304,3 +304,21 @@ func TestEngineConcurrent(t *testing.T) {
 func snapMessages(e *Engine) uint64 {
 	return e.Snapshot(time.Unix(0, 0)).Packs[0].Sources[0].Messages
 }
+
+// Data time that steps back (a source restarting its clock without a
+// Reset) must not freeze the aggregate checks until it catches up.
+func TestEngineTimeStepsBack(t *testing.T) {
+	e := newTestEngine(t, "")
+	s := newScene()
+	drive(e, s, epoch+100*sec, epoch+110*sec, 8, nil)
+	s.cells[2] = 3.30 // spread 0.41 V past 0.25 V
+	drive(e, s, epoch, epoch+5*sec, 8, nil)
+	p := snap(t, e)
+	found := false
+	for _, a := range p.Alarms {
+		found = found || a.Limit == "spread"
+	}
+	if !found {
+		t.Errorf("spread past its limit for 5 s after time stepped back: alarms %+v", p.Alarms)
+	}
+}

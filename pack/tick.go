@@ -20,6 +20,9 @@ func floorTo(t, step int64) int64 {
 // source rates.
 func (ps *packState) tick(t int64, ids *uint64) {
 	at := floorTo(t, ps.aggPeriod)
+	if at < ps.nextSec-secondNs {
+		ps.nextSec = at // data time stepped back: restart the second grid
+	}
 	ps.computeAgg(at)
 	a := &ps.agg
 	ps.stepAgg(LimSpread, a.spread, 0, at, ids)
