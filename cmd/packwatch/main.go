@@ -35,6 +35,11 @@ func commands() map[string]command {
 		"replay":   {"play a recording through the dashboard", runReplay},
 		"export":   {"export a recording to CSV or JSON lines", runExport},
 		"check":    {"pre-flight check: go / no-go for a pack, with a record", runCheck},
+		"report":   {"analyse a recording: capacity, knee and cutoff, resistance, bursts", runReport},
+		"curve":    {"voltage against amp-hours from a recording, as CSV, SVG or PNG", runCurve},
+		"ports": {"list serial ports (with their usb: names) and CAN interfaces", func(_ context.Context, args []string, stdout, stderr io.Writer) int {
+			return runPorts(args, stdout, stderr)
+		}},
 		"simulate": {"drive a device or write a capture from a simulated pack", func(_ context.Context, args []string, stdout, stderr io.Writer) int {
 			return runSimulate(args, stdout, stderr)
 		}},
