@@ -322,3 +322,28 @@ func TestEngineTimeStepsBack(t *testing.T) {
 		t.Errorf("spread past its limit for 5 s after time stepped back: alarms %+v", p.Alarms)
 	}
 }
+
+func TestRestartReason(t *testing.T) {
+	base := func() *config.Profile {
+		return &config.Profile{Pack: config.Pack{Cells: 12}, Sources: []config.Source{{Name: "bms", Kind: "socketcan", Device: "can0"}}}
+	}
+	tests := []struct {
+		name    string
+		edit    func(p *config.Profile)
+		restart bool
+	}{
+		{"same", func(p *config.Profile) {}, false},
+		{"limits only", func(p *config.Profile) { p.Limits.CellHighV = 4.1 }, false},
+		{"cell count", func(p *config.Profile) { p.Pack.Cells = 13 }, true},
+		{"device", func(p *config.Profile) { p.Sources[0].Device = "can1" }, true},
+		{"bitrate", func(p *config.Profile) { p.Sources[0].Bitrate = 250000 }, true},
+		{"added source", func(p *config.Profile) { p.Sources = append(p.Sources, config.Source{Name: "x"}) }, true},
+	}
+	for _, tc := range tests {
+		nw := base()
+		tc.edit(nw)
+		if got := restartReason(base(), nw) != ""; got != tc.restart {
+			t.Errorf("%s: restart %v, want %v (%q)", tc.name, got, tc.restart, restartReason(base(), nw))
+		}
+	}
+}
