@@ -38,6 +38,9 @@ func (c *Cell) SOC() float64 { return c.z }
 // SetSOC sets the state of charge (clamped to 0..1) and lets the RC pair
 // relax, as after a long rest.
 func (c *Cell) SetSOC(z float64) {
+	if math.IsNaN(z) {
+		z = 0
+	}
 	c.z = clamp(z, 0, 1)
 	c.iR1 = 0
 }

@@ -21,7 +21,12 @@ type Encoder struct {
 	m      *decode.Map
 	frames []frameSched
 	lines  []lineSched
+	warn   []string
 }
+
+// Warnings lists what the encoder cannot write: line patterns it cannot
+// generate text for, groups that take no number. Those lines are skipped.
+func (e *Encoder) Warnings() []string { return e.warn }
 
 // encField is one expanded CAN field with the slot its value comes from and
 // the bounds of its raw value.
@@ -183,6 +188,21 @@ func NewEncoder(m *decode.Map) (*Encoder, error) {
 			}
 			if len(inst.fields) > 0 {
 				ls.insts = append(ls.insts, inst)
+			}
+		}
+		if len(ls.insts) > 0 {
+			inst := &ls.insts[0]
+			fill := map[int]string{}
+			for _, lf := range inst.fields {
+				if lf.f.IndexGroup >= 0 {
+					fill[lf.f.IndexGroup] = strconv.Itoa(inst.idx)
+				}
+				if _, ok := formatFor(gen, lf.f.Group, 0); !ok {
+					e.warn = append(e.warn, fmt.Sprintf("%s: group %d of %q takes no number; these lines are not simulated", lf.f.Path, lf.f.Group, spec.Re.String()))
+				}
+			}
+			if _, err := gen.Generate(fill); err != nil {
+				e.warn = append(e.warn, fmt.Sprintf("%s: %v; these lines are not simulated", spec.Path, err))
 			}
 		}
 		e.lines = append(e.lines, ls)

@@ -75,3 +75,19 @@ func TestFormatFor(t *testing.T) {
 		t.Error("a number was written into a letters-only group")
 	}
 }
+
+// A pattern the generator cannot satisfy is reported, not silently skipped.
+func TestEncoderWarnsOnUnwritableLine(t *testing.T) {
+	dm := loadMap(t, "testdata/unwritable-line.toml")
+	enc, err := NewEncoder(dm)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(enc.Warnings()) != 1 {
+		t.Fatalf("warnings %q, want one", enc.Warnings())
+	}
+	good := loadMap(t, buoyProfile)
+	if enc, _ := NewEncoder(good); len(enc.Warnings()) != 0 {
+		t.Errorf("warnings for the example profile: %q", enc.Warnings())
+	}
+}

@@ -169,6 +169,9 @@ func (sc *Scenario) Validate() error {
 	default:
 		return fmt.Errorf("end = %q: want \"loop\" or \"hold\"", sc.End)
 	}
+	if err := sc.finite(); err != nil {
+		return err
+	}
 	if sc.StartSOCPct != nil && (*sc.StartSOCPct < 0 || *sc.StartSOCPct > 100) {
 		return fmt.Errorf("start_soc_pct = %g: want 0 to 100", *sc.StartSOCPct)
 	}
@@ -226,6 +229,37 @@ func (sc *Scenario) Validate() error {
 }
 
 func f64(v float64) *float64 { return &v }
+
+// finite rejects NaN and infinities anywhere in the scenario.
+func (sc *Scenario) finite() error {
+	bad := func(what string, v float64) error {
+		if math.IsNaN(v) || math.IsInf(v, 0) {
+			return fmt.Errorf("%s = %g: want a finite number", what, v)
+		}
+		return nil
+	}
+	var errs []error
+	if sc.AmbientC != nil {
+		errs = append(errs, bad("ambient_c", *sc.AmbientC))
+	}
+	if sc.StartSOCPct != nil {
+		errs = append(errs, bad("start_soc_pct", *sc.StartSOCPct))
+	}
+	for _, c := range sc.Cells {
+		errs = append(errs, bad("capacity_factor", c.CapacityFactor), bad("r0_factor", c.R0Factor), bad("soc_offset_pct", c.SOCOffsetPct))
+	}
+	for _, s := range sc.Sensors {
+		errs = append(errs, bad("busbar_milliohm", s.BusbarMilliohm), bad("heat_capacity_factor", s.HeatCapacityFactor), bad("heat_w", s.HeatW))
+		if s.StartC != nil {
+			errs = append(errs, bad("start_c", *s.StartC))
+		}
+	}
+	for _, st := range sc.Steps {
+		errs = append(errs, bad("current_a", st.CurrentA), bad("cell_v", st.CellV), bad("cutoff_a", st.CutoffA),
+			bad("burst_a", st.BurstA), bad("until_cell_v", st.UntilCellV), bad("until_soc_pct", st.UntilSOCPct))
+	}
+	return errors.Join(errs...)
+}
 
 // BuoyWinchScenario is packwatch's own demo story, for the example profile
 // config/examples/buoy-winch.toml (12 NMC cells of 180 Ah, 3 sensors): the

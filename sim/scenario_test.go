@@ -64,6 +64,8 @@ func TestParseScenarioErrors(t *testing.T) {
 		{`until_cell_v = 3.30`, ``, "until"},
 		{`start_soc_pct = 45`, `start_soc_pct = 145`, "start_soc_pct"},
 		{`n = 2`, `n = 0`, "n = 0"},
+		{`start_soc_pct = 45`, `start_soc_pct = nan`, "finite"},
+		{`current_a = 60`, `current_a = inf`, "finite"},
 	}
 	for _, c := range cases {
 		text := strings.Replace(string(base), c.from, c.to, 1)

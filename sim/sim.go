@@ -209,6 +209,10 @@ func (s *Sim) StoryLength() time.Duration {
 // SpeedMax).
 func (s *Sim) Speed() float64 { return s.speed }
 
+// Warnings lists the parts of the profile the simulator cannot write (see
+// Encoder.Warnings).
+func (s *Sim) Warnings() []string { return s.enc.Warnings() }
+
 // Scenario is the scenario in use.
 func (s *Sim) Scenario() *Scenario { return s.sc }
 
@@ -399,7 +403,7 @@ func (s *Sim) generate(until int64) {
 		}
 		s.garbageUpTo(due)
 		if s.dirty {
-			s.rep.begin(s.model, s.story.phase, &s.fs, s.forced, s.chgV)
+			s.rep.begin(s.model, s.story.phase, s.story.cv, &s.fs, s.forced, s.chgV)
 			s.dirty = false
 		}
 		n := len(s.buf)

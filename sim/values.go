@@ -25,8 +25,11 @@ type reporter struct {
 	fs       *faultState
 	forced   map[int]float64
 	chgV     float64
+	cv       bool
 	packVVal float64
 	packVOK  bool
+	minVVal  float64
+	minVOK   bool
 	// frozen holds values kept by stopped sensors and a stuck contactor.
 	frozen map[int]float64
 }
@@ -70,10 +73,19 @@ type faultState struct {
 // the next time it is read. forced maps a cell (from 1) to a reported
 // voltage that overrides the model's. The arguments are kept until the next
 // begin.
-func (r *reporter) begin(m *Model, ph Phase, fs *faultState, forced map[int]float64, chgV float64) {
+func (r *reporter) begin(m *Model, ph Phase, cv bool, fs *faultState, forced map[int]float64, chgV float64) {
 	r.epoch++
-	r.m, r.ph, r.fs, r.forced, r.chgV = m, ph, fs, forced, chgV
-	r.packVOK = false
+	r.m, r.ph, r.cv, r.fs, r.forced, r.chgV = m, ph, cv, fs, forced, chgV
+	r.packVOK, r.minVOK = false, false
+}
+
+// minV is the lowest cell's terminal voltage now.
+func (r *reporter) minV() float64 {
+	if !r.minVOK {
+		r.minVVal, _ = r.m.CellVoltageRange(r.m.I)
+		r.minVOK = true
+	}
+	return r.minVVal
 }
 
 // reading gives a slot's reading in the current epoch (readingSource).
@@ -93,6 +105,9 @@ func (r *reporter) packV() float64 {
 	}
 	return r.packVVal
 }
+
+// balanceAboveV is how far above the lowest cell a cell is bled.
+const balanceAboveV = 0.010
 
 func b2f(b bool) float64 {
 	if b {
@@ -121,7 +136,12 @@ func (r *reporter) value(s *decode.Slot, slot int) (float64, bool) {
 		}
 		return v, false
 	case config.BindCellBalancing:
-		return 0, false
+		// the BMS bleeds cells more than 10 mV above the lowest during the
+		// constant-voltage phase (common practice, no source)
+		if n < 1 || n > len(m.Cells) || ph != PhaseCharging || !r.cv {
+			return 0, false
+		}
+		return b2f(m.Cells[n-1].Voltage(m.I) > r.minV()+balanceAboveV), false
 	case config.BindTemp:
 		if n < 1 || n > len(m.Sensors) {
 			return 0, true

@@ -146,6 +146,9 @@ func simulate(ctx context.Context, a simulateArgs, stdout, stderr io.Writer) err
 	if err != nil {
 		return err
 	}
+	for _, w := range s.Warnings() {
+		fmt.Fprintln(stderr, "simulate: warning:", w)
+	}
 	if opt.For == 0 && kind == "capture" && a.rate == 0 {
 		opt.For = s.StoryLength()
 		if s, err = sim.New(m, opt); err != nil {
