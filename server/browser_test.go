@@ -92,16 +92,20 @@ func getState(t *testing.T, base string) *pack.Snapshot {
 // be acknowledged through the Origin-checked POST), and a stopped server
 // turns the page NOT LIVE.
 func TestBrowserEndToEnd(t *testing.T) {
+	tStart := time.Now()
 	ctx, cancel := browser(t, 1400, 900)
 	defer cancel()
+	defer func() { t.Logf("browser test took %v", time.Since(tStart).Round(time.Millisecond)) }()
 
 	eng := newFakeEngine(48, 8)
 	r := startServer(t, Options{Engine: eng, BusView: fakeBus, Tick: 100 * time.Millisecond, Version: "test"})
 
 	allNumbers := `(() => { const v = [...document.querySelectorAll('#cell-bars .cell .cv')]; return v.length === 48 && v.every(e => /^\d+\.\d{3}$/.test(e.textContent)); })()`
+	t0 := time.Now()
 	if err := chromedp.Do(ctx, chromedp.EmulateViewport(1400, 900), chromedp.Navigate(r.base+"/")); err != nil {
 		t.Fatalf("navigate: %v", err)
 	}
+	t.Logf("browser start and page load: %v", time.Since(t0).Round(time.Millisecond))
 	waitJS(t, ctx, "48 cell voltages shown", allNumbers, 30*time.Second)
 
 	// Freeze the data, then compare the page with /api/state at the same seq.
@@ -184,7 +188,7 @@ func TestBrowserEndToEnd(t *testing.T) {
 	screenshot(t, ctx, "dashboard-demo-1400x900.png")
 
 	// Stop the server: the page must say NOT LIVE with the age of its data.
-	t0 := time.Now()
+	t0 = time.Now()
 	r.stop(t)
 	t.Logf("server stopped in %v", time.Since(t0))
 	waitJS(t, ctx, "NOT LIVE", `(() => { const n = document.getElementById('notlive'); return !n.hidden && n.textContent.includes('NOT LIVE') && n.textContent.includes('old') && document.documentElement.dataset.live === 'no'; })()`, 30*time.Second)
@@ -194,6 +198,8 @@ func TestBrowserEndToEnd(t *testing.T) {
 // waitJS polls a JavaScript condition in the page until it is true.
 func waitJS(t *testing.T, ctx context.Context, what, cond string, within time.Duration) {
 	t.Helper()
+	t0 := time.Now()
+	defer func() { t.Logf("waited %v for %s", time.Since(t0).Round(time.Millisecond), what) }()
 	if _, err := chromedp.Run(ctx, chromedp.Poll[bool](cond, chromedp.WithPollingTimeout(within))); err != nil {
 		t.Fatalf("waiting for %s: %v", what, err)
 	}
@@ -209,9 +215,14 @@ func evalJS[T any](t *testing.T, ctx context.Context, expr string) T {
 	return v
 }
 
-// screenshot saves the viewport; a name starting "full-" saves the whole page.
+// screenshot saves the viewport; a name starting "full-" saves the whole
+// page. Without -shots only the trip view is captured (into a temporary
+// directory), to keep the test quick.
 func screenshot(t *testing.T, ctx context.Context, name string) {
 	t.Helper()
+	if *shotsDir == "" && name != "dashboard-trip-1400x900.png" {
+		return
+	}
 	act := chromedp.CaptureScreenshot()
 	if strings.HasPrefix(name, "full-") {
 		if *shotsDir == "" {
@@ -231,4 +242,3 @@ func screenshot(t *testing.T, ctx context.Context, name string) {
 	}
 	t.Logf("screenshot: %s", p)
 }
-
