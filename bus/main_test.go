@@ -20,5 +20,8 @@ func skipOrFail(t *testing.T, reason string) {
 }
 
 func TestMain(m *testing.M) {
+	if os.Getenv(writerEnv) != "" {
+		os.Exit(tcpWriterChild())
+	}
 	goleak.VerifyTestMain(m)
 }

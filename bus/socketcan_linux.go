@@ -65,11 +65,13 @@ func (a *socketCANAdapter) connect(ctx context.Context, idle time.Duration) (lin
 		f.Close()
 		return nil, "", fmt.Errorf("open %s: %w", a.spec.Device, err)
 	}
-	return l, describeCANInterface(a.spec.Device, a.spec.Bitrate), nil
+	return l, describeCANInterface(a.spec.Device, a.spec.Bitrate, a.spec.Normal), nil
 }
 
 // describeCANInterface says how the interface is set up, in words.
-func describeCANInterface(name string, want int) string {
+// The interface's mode is set on the interface itself (ip link set NAME type
+// can listen-only on|off); packwatch only reports a mismatch with the profile.
+func describeCANInterface(name string, want int, wantNormal bool) string {
 	ci, err := readCANInterface(name)
 	if err != nil {
 		return name + " (mode and state not readable: " + err.Error() + ")"
@@ -78,8 +80,11 @@ func describeCANInterface(name string, want int) string {
 	if want != 0 && ci.Bitrate != 0 && ci.Bitrate != want {
 		s += fmt.Sprintf("; the profile says %d kbit/s", want/1000)
 	}
-	if ci.Mode == "normal" {
-		s += "; normal mode: the interface acknowledges frames (packwatch itself never transmits)"
+	switch {
+	case ci.Mode == "normal" && !wantNormal:
+		s += "; normal mode: the interface acknowledges frames (packwatch itself never transmits); for listen-only: ip link set " + name + " type can listen-only on"
+	case ci.Mode == "listen-only" && wantNormal:
+		s += "; the profile asks for normal mode but the interface is listen-only: on a bench where the BMS is the only other node, nothing acknowledges its frames"
 	}
 	return s
 }

@@ -37,7 +37,8 @@ type Spec struct {
 	// compared with the interface's bitrate and reported.
 	Bitrate int
 	// Normal opens a serial-can adapter in normal mode (it acknowledges
-	// frames). The default, false, is listen-only.
+	// frames). The default, false, is listen-only. A socketcan interface's
+	// mode is set on the interface itself; a mismatch is reported.
 	Normal bool
 
 	// Clock stamps messages; nil means a new LiveClock.
@@ -87,9 +88,6 @@ func Open(spec Spec) (Source, error) {
 	spec = spec.withDefaults()
 	switch spec.Kind {
 	case KindSocketCAN:
-		if spec.Normal {
-			return nil, bad("mode = \"normal\" is set on the interface itself for socketcan (ip link set %s type can listen-only off); packwatch never transmits on it", spec.Device)
-		}
 		a, err := newSocketCANAdapter(spec)
 		if err != nil {
 			return nil, bad("%v", err)
