@@ -77,6 +77,7 @@ type frameSched struct {
 type lineInst struct {
 	idx    int // the printed index (index group text), -1 for static lines
 	fields []lineFieldVal
+	hints  []int // per field, the number form that fitted last (formatNum)
 }
 
 type lineFieldVal struct {
@@ -187,6 +188,7 @@ func NewEncoder(m *decode.Map) (*Encoder, error) {
 				inst.fields = append(inst.fields, lineFieldVal{f: f, slot: slot})
 			}
 			if len(inst.fields) > 0 {
+				inst.hints = make([]int, len(inst.fields))
 				ls.insts = append(ls.insts, inst)
 			}
 		}
@@ -310,7 +312,7 @@ func signExtend(raw uint64, f *config.CANField) int64 {
 // lineText writes one line instance from the readings.
 func (e *Encoder) lineText(ls *lineSched, inst *lineInst, r readingSource) (string, error) {
 	fill := make(map[int]string, len(inst.fields)+1)
-	for _, lf := range inst.fields {
+	for i, lf := range inst.fields {
 		if lf.f.IndexGroup >= 0 {
 			fill[lf.f.IndexGroup] = strconv.Itoa(inst.idx)
 		}
@@ -325,7 +327,7 @@ func (e *Encoder) lineText(ls *lineSched, inst *lineInst, r readingSource) (stri
 		if math.IsNaN(num) || math.IsInf(num, 0) {
 			num = 0
 		}
-		text, ok := formatFor(ls.gen, lf.f.Group, num)
+		text, ok := formatFor(ls.gen, lf.f.Group, num, &inst.hints[i])
 		if !ok {
 			return "", fmt.Errorf("%s: no text for %g fits group %d of %q", lf.f.Path, num, lf.f.Group, ls.gen.re.String())
 		}
@@ -334,24 +336,53 @@ func (e *Encoder) lineText(ls *lineSched, inst *lineInst, r readingSource) (stri
 	return ls.gen.Generate(fill)
 }
 
-// formatFor writes num in the first form the capture group accepts: a whole
-// number, then with 1 to 6 decimals, then 0x hex; a negative number that the
-// group does not accept becomes 0.
-func formatFor(g *lineGen, group int, num float64) (string, bool) {
+// numForms is how many ways formatNum can write a number.
+const numForms = 10
+
+// formatNum writes x in form k: 0 the shortest exact decimal (if it has at
+// most 6 decimals), 1–6 with 6 down to 1 decimals, 7 a whole number, 8 and 9
+// hex with 0x in lower and upper case (x ≥ 0). ok is false when the form
+// does not apply.
+func formatNum(x float64, k int) (string, bool) {
+	switch {
+	case k == 0:
+		s := strconv.FormatFloat(x, 'f', -1, 64)
+		if i := strings.IndexByte(s, '.'); i >= 0 && len(s)-i-1 > 6 {
+			return "", false
+		}
+		return s, true
+	case k <= 6:
+		return strconv.FormatFloat(x, 'f', 7-k, 64), true
+	case k == 7:
+		return strconv.FormatFloat(math.Round(x), 'f', 0, 64), true
+	case x < 0:
+		return "", false
+	case k == 8:
+		return "0x" + strconv.FormatUint(uint64(math.Round(x)), 16), true
+	default:
+		return "0x" + strings.ToUpper(strconv.FormatUint(uint64(math.Round(x)), 16)), true
+	}
+}
+
+// formatFor writes num in the most precise form the capture group accepts
+// (see formatNum), trying *hint first (the form that fitted last time; may
+// be nil); a negative number the group does not accept becomes 0.
+func formatFor(g *lineGen, group int, num float64, hint ...*int) (string, bool) {
+	var h *int
+	if len(hint) > 0 {
+		h = hint[0]
+	}
 	try := func(x float64) (string, bool) {
-		if s := strconv.FormatFloat(math.Round(x), 'f', 0, 64); g.Fits(group, s) {
-			return s, true
-		}
-		for d := 1; d <= 6; d++ {
-			if s := strconv.FormatFloat(x, 'f', d, 64); g.Fits(group, s) {
+		if h != nil {
+			if s, ok := formatNum(x, *h); ok && g.Fits(group, s) {
 				return s, true
 			}
 		}
-		if x >= 0 {
-			if s := "0x" + strconv.FormatUint(uint64(math.Round(x)), 16); g.Fits(group, s) {
-				return s, true
-			}
-			if s := "0x" + strings.ToUpper(strconv.FormatUint(uint64(math.Round(x)), 16)); g.Fits(group, s) {
+		for k := 0; k < numForms; k++ {
+			if s, ok := formatNum(x, k); ok && g.Fits(group, s) {
+				if h != nil {
+					*h = k
+				}
 				return s, true
 			}
 		}

@@ -51,7 +51,7 @@ func TestLineGen(t *testing.T) {
 }
 
 func TestFormatFor(t *testing.T) {
-	re := regexp.MustCompile(`^a (?P<i>\d+) b (?P<d>-?\d+\.\d{2}) c (?P<h>0x[0-9A-F]+) d (?P<u>\d+)$`)
+	re := regexp.MustCompile(`^a (?P<i>\d+) b (?P<d>-?\d+\.\d{2}) c (?P<h>0x[0-9A-F]+) d (?P<u>\d+) e (?P<f>[0-9.]+)$`)
 	g, _ := newLineGen(re)
 	for _, c := range []struct {
 		group int
@@ -61,8 +61,12 @@ func TestFormatFor(t *testing.T) {
 	}{
 		{1, 3912.4, "3912", true},
 		{2, -4.567, "-4.57", true},
+		{2, 3.7, "3.70", true},
 		{3, 255, "0xFF", true},
 		{4, -3, "0", true}, // a group without a sign takes 0 for a negative value
+		{5, 3.7, "3.7", true},
+		{5, 3.61234567, "3.612346", true}, // the most precise form the group takes
+		{5, 4, "4", true},
 	} {
 		got, ok := formatFor(g, c.group, c.num)
 		if got != c.want || ok != c.ok {
