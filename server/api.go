@@ -14,12 +14,13 @@ type pageData struct {
 	Mode    string
 	Version string
 	Replay  bool
+	Check   bool
 }
 
 func (s *Server) handlePage(w http.ResponseWriter, r *http.Request) {
 	w.Header().Set("Content-Type", "text/html; charset=utf-8")
 	w.Header().Set("Cache-Control", "no-store")
-	d := pageData{Mode: s.opts.Mode, Version: s.opts.Version, Replay: s.opts.Replay != nil}
+	d := pageData{Mode: s.opts.Mode, Version: s.opts.Version, Replay: s.opts.Replay != nil, Check: s.opts.CheckPanel}
 	if err := s.page.ExecuteTemplate(w, "index.html", d); err != nil {
 		s.opts.Logger.Error("render page", "err", err)
 	}

@@ -99,6 +99,9 @@ func (h *hub) tick(now time.Time) {
 	h.latest.Store(f)
 	h.ticks.Add(1)
 	h.hist.add(s)
+	if h.opts.OnSnapshot != nil {
+		h.opts.OnSnapshot(s)
+	}
 	h.mu.Lock()
 	for c := range h.clients {
 		c.offer(c.snap, msg)

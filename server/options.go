@@ -5,6 +5,7 @@ import (
 	"io"
 	"log/slog"
 	"net"
+	"net/http"
 	"time"
 
 	"packwatch/pack"
@@ -55,6 +56,17 @@ type Options struct {
 	ProfileJSON func() any
 	// Replay, when set, enables the replay control routes.
 	Replay Replay
+	// OnSnapshot, when set, is called on the hub goroutine with every
+	// snapshot it takes (e.g. metrics' Observe); it must return quickly.
+	OnSnapshot func(*pack.Snapshot)
+	// Handlers are extra routes, chi patterns to handlers (e.g. "/metrics",
+	// "/api/check/*"), mounted behind the same checks as every route: Host,
+	// token, and Origin on anything but GET and HEAD.
+	Handlers map[string]http.Handler
+	// CheckPanel adds the pre-flight check panel to the page (section
+	// #check-panel with static/check.js and check.css); its API must be
+	// mounted through Handlers.
+	CheckPanel bool
 
 	// Token is the access token. Empty on a loopback address means none; empty
 	// elsewhere means one is generated (see Server.Token) and printed to

@@ -4,6 +4,8 @@ import (
 	"encoding/base64"
 	"encoding/json"
 	"errors"
+	"fmt"
+	"io"
 	"net"
 	"net/http"
 	"net/http/httptest"
@@ -12,6 +14,8 @@ import (
 	"strings"
 	"testing"
 	"time"
+
+	"packwatch/pack"
 )
 
 // addrListener is a loopback listener that reports another address, so a
@@ -435,5 +439,60 @@ func TestNewOptions(t *testing.T) {
 				t.Error("New accepted bad options")
 			}
 		})
+	}
+}
+
+// Extra handlers sit behind the same checks as the built-in routes.
+func TestExtraHandlers(t *testing.T) {
+	var paths []string
+	h := http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		paths = append(paths, r.Method+" "+r.URL.Path)
+		_, _ = io.WriteString(w, "ok")
+	})
+	s := newTestServer(t, Options{Listener: lanListener(t), Handlers: map[string]http.Handler{"/metrics": h, "/api/check/*": h}, CheckPanel: true})
+	tok := map[string]string{"Authorization": "Bearer " + s.Token()}
+	tokOrigin := map[string]string{"Authorization": "Bearer " + s.Token(), "Origin": "http://127.0.0.1:8080"}
+	for _, tc := range []struct {
+		method, path string
+		hdr          map[string]string
+		want         int
+	}{
+		{"GET", "/metrics", nil, http.StatusUnauthorized},
+		{"GET", "/metrics", tok, 200},
+		{"GET", "/metrics", map[string]string{"Authorization": "Bearer " + s.Token(), "Host": "evil.example"}, http.StatusMisdirectedRequest},
+		{"POST", "/api/check/run", tok, http.StatusForbidden},
+		{"POST", "/api/check/run", tokOrigin, 200},
+		{"GET", "/api/check/history", tok, 200},
+	} {
+		if w := do(s, tc.method, tc.path, tc.hdr); w.Code != tc.want {
+			t.Errorf("%s %s: %d, want %d", tc.method, tc.path, w.Code, tc.want)
+		}
+	}
+	if got := strings.Join(paths, ","); got != "GET /metrics,POST /api/check/run,GET /api/check/history" {
+		t.Errorf("handler saw %s", got)
+	}
+	page := do(s, "GET", "/", tok).Body.String()
+	for _, want := range []string{`id="check-panel"`, `src="/static/check.js"`, `href="/static/check.css"`} {
+		if !strings.Contains(page, want) {
+			t.Errorf("page with CheckPanel lacks %s", want)
+		}
+	}
+	if page := do(newTestServer(t, Options{}), "GET", "/", nil).Body.String(); strings.Contains(page, "check-panel") {
+		t.Error("page without CheckPanel has the check panel")
+	}
+}
+
+// OnSnapshot sees every snapshot the hub takes, in order, the same one
+// /api/state serves.
+func TestOnSnapshot(t *testing.T) {
+	var seqs []uint64
+	s := newTestServer(t, Options{OnSnapshot: func(p *pack.Snapshot) { seqs = append(seqs, p.Seq) }})
+	s.hub.tick(time.Now())
+	s.hub.tick(time.Now())
+	if fmt.Sprint(seqs) != "[1 2 3]" {
+		t.Errorf("OnSnapshot saw %v, want [1 2 3]", seqs)
+	}
+	if s.Latest() == nil || s.Latest().Seq != 3 {
+		t.Errorf("Latest = %+v", s.Latest())
 	}
 }

@@ -17,6 +17,7 @@ import (
 	"github.com/go-chi/chi/v5/middleware"
 	"github.com/gorilla/websocket"
 
+	"packwatch/pack"
 	"packwatch/web"
 )
 
@@ -139,6 +140,14 @@ func (s *Server) URL() string {
 // Handler is the server's HTTP handler (routes and checks), for tests.
 func (s *Server) Handler() http.Handler { return s.handler }
 
+// Latest is the snapshot of the latest tick, nil before the first.
+func (s *Server) Latest() *pack.Snapshot {
+	if f := s.hub.latest.Load(); f != nil {
+		return f.snap
+	}
+	return nil
+}
+
 // Close releases the listener of a server that was never Run.
 func (s *Server) Close() error { return s.ln.Close() }
 
@@ -220,6 +229,9 @@ func (s *Server) routes() http.Handler {
 	r.Post("/api/packs/{pack}/alarms/{id}/ack", s.handleAck)
 	if s.opts.Replay != nil {
 		r.Post("/api/replay/{action}", s.handleReplay)
+	}
+	for pattern, h := range s.opts.Handlers {
+		r.Handle(pattern, h)
 	}
 	return r
 }
