@@ -282,3 +282,22 @@ func socFunc(s *Session, ch *Charge, runs []Run) func(float64) float64 {
 		return math.Min(soc, 100)
 	}
 }
+
+// SessionCurves segments a session and returns the voltage-against-charge
+// curves of every charge and discharge run (pack, and cells unless
+// opt.NoCellCurves), without the other analyses.
+func SessionCurves(s *Session, opt Options) []Curve {
+	if opt.StepAh <= 0 {
+		opt.StepAh = 1
+	}
+	if s.Current.Empty() {
+		return nil
+	}
+	ch := countCharge(s)
+	runs := Runs(s, ch, Segments(s, ch, opt.Segment))
+	var out []Curve
+	for _, r := range runs {
+		out = append(out, RunCurves(s, ch, r, opt.StepAh, !opt.NoCellCurves)...)
+	}
+	return out
+}

@@ -133,3 +133,6 @@ func (c *Collector) Session() *Session {
 	c.s.Finish()
 	return c.s
 }
+
+// Messages is the number of messages added so far.
+func (c *Collector) Messages() int { return c.s.Messages }

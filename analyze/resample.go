@@ -33,7 +33,10 @@ func ResampleByCharge(chT, chQ, vT, vV []float64, step float64) (q, v []float64)
 		} else {
 			val = pv[j]
 		}
-		q = append(q, g)
+		q = append(q, g+0) // never −0
+		if q[len(q)-1] == 0 {
+			q[len(q)-1] = 0
+		}
 		v = append(v, val)
 	}
 	return q, v
