@@ -20,7 +20,12 @@ import (
 	"packwatch/sim"
 )
 
-func TestMain(m *testing.M) { goleak.VerifyTestMain(m) }
+func TestMain(m *testing.M) {
+	goleak.VerifyTestMain(m,
+		// chromedp's browser process reaper may outlive the browser test briefly.
+		goleak.IgnoreTopFunction("os/exec.(*Cmd).Wait"),
+	)
+}
 
 type sliceSink struct{ msgs []bus.Message }
 
