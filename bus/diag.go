@@ -48,9 +48,9 @@ func (d *diagnoser) check(now int64, n, good, bad uint64, a adapter) (string, bo
 			d.overrun = o.overran(w)
 		}
 	case d.total == 0 && now-d.connected >= d.quiet:
-		h = fmt.Sprintf("no bytes received in the first %v: is the device powered and sending?", time.Duration(d.quiet))
+		h = fmt.Sprintf("nothing received in the first %v: is the device powered and sending?", time.Duration(d.quiet))
 	case d.total > 0 && now-d.lastByte >= d.quiet:
-		h = fmt.Sprintf("no bytes in the last %v", time.Duration(d.quiet))
+		h = fmt.Sprintf("nothing received in the last %v", time.Duration(d.quiet))
 	}
 	changed := h != d.hint
 	d.hint = h

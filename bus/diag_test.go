@@ -89,12 +89,12 @@ func TestDiagnoser(t *testing.T) {
 	}{
 		{s / 2, 0, "", "", false}, // inside the first period: nothing yet
 		{1 * s, 0, "", "", false}, // 1 s of silence: too early to say
-		{5 * s, 0, "", "no bytes received in the first 5s", true},
-		{6 * s, 0, "", "no bytes received in the first 5s", false}, // same words: no new status
-		{7 * s, 100, "", "", true},                                 // bytes: all well
+		{5 * s, 0, "", "nothing received in the first 5s", true},
+		{6 * s, 0, "", "nothing received in the first 5s", false}, // same words: no new status
+		{7 * s, 100, "", "", true},                                // bytes: all well
 		{8 * s, 100, "unreadable input", "unreadable input", true},
 		{9 * s, 100, "", "", true},
-		{15 * s, 0, "", "no bytes in the last 5s", true},
+		{15 * s, 0, "", "nothing received in the last 5s", true},
 	}
 	for i, st := range steps {
 		a.h = st.adapter

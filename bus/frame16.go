@@ -77,12 +77,13 @@ func AppendFrame16(dst []byte, f can.Frame, order binary.ByteOrder) []byte {
 // frame16Decoder cuts a byte stream into 16-byte frames, keeping a partial
 // frame between calls.
 type frame16Decoder struct {
-	order  binary.ByteOrder
-	carry  [FrameSize]byte
-	n      int
-	frames uint64
-	errs   uint64
-	bad    uint64
+	order   binary.ByteOrder
+	carry   [FrameSize]byte
+	n       int
+	frames  uint64
+	errs    uint64
+	bad     uint64
+	lastErr can.Frame // the latest error frame, for the hint
 }
 
 func (d *frame16Decoder) feed(p []byte, t int64, src uint16, out []Message) []Message {
@@ -112,6 +113,7 @@ func (d *frame16Decoder) one(b []byte, t int64, src uint16, out []Message) []Mes
 	}
 	if kind == KindError {
 		d.errs++
+		d.lastErr = f
 	} else {
 		d.frames++
 	}

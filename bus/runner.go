@@ -2,7 +2,6 @@ package bus
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"sync"
 	"sync/atomic"
@@ -145,7 +144,6 @@ type session struct {
 	clockGaps uint64
 	lastT     int64
 	desc      string
-	hint      string
 	out       []Message
 }
 
@@ -225,12 +223,11 @@ func (s *session) readLoop(ctx context.Context, l link) error {
 		s.r.stats.Bytes += uint64(n)
 		good, bad := s.r.a.counts(&s.r.stats)
 		s.r.mu.Unlock()
-		if h, changed := d.check(now, uint64(n), good, bad, s.r.a); changed {
-			s.hint = h
-			s.r.mu.Lock()
-			s.r.stats.Hint = h
-			s.r.stats.Overrun = d.overrun
-			s.r.mu.Unlock()
+		h, changed := d.check(now, uint64(n), good, bad, s.r.a)
+		s.r.mu.Lock()
+		s.r.stats.Hint, s.r.stats.Overrun = h, d.overrun
+		s.r.mu.Unlock()
+		if changed {
 			reason := s.desc
 			if h != "" {
 				reason += "; " + h
@@ -248,6 +245,3 @@ func (s *session) readLoop(ctx context.Context, l link) error {
 		}
 	}
 }
-
-// errClosed is returned by links read after Close.
-var errClosed = errors.New("closed")

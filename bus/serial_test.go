@@ -203,7 +203,7 @@ func TestSerialNoBytesHint(t *testing.T) {
 	spec := testSpec(bus.KindSerialText, p.link)
 	spec.Quiet = 50 * time.Millisecond
 	rec := runSource(t, mustOpen(t, spec))
-	rec.WaitFor(t, "no bytes hint", hasReason("no bytes received"))
+	rec.WaitFor(t, "no bytes hint", hasReason("nothing received"))
 }
 
 func TestSerialMissingDevice(t *testing.T) {

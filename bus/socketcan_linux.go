@@ -102,7 +102,7 @@ func (a *socketCANAdapter) counts(st *Stats) (good, bad uint64) {
 }
 
 func (a *socketCANAdapter) hint(w window) string {
-	return frameHint(w, &a.lastErr, a.dec.errs)
+	return frameHint(w, &a.lastErr, &a.dec)
 }
 
 // datagramLink reads a socket where each datagram is one 16-byte frame

@@ -48,18 +48,18 @@ func (a *tcpCANAdapter) counts(st *Stats) (good, bad uint64) {
 }
 
 func (a *tcpCANAdapter) hint(w window) string {
-	return frameHint(w, &a.lastEr, a.dec.errs)
+	return frameHint(w, &a.lastEr, &a.dec)
 }
 
 // frameHint is the diagnostic shared by the 16-byte frame sources.
-func frameHint(w window, lastErr *uint64, errs uint64) string {
-	newErrs := errs - *lastErr
-	*lastErr = errs
+func frameHint(w window, lastErr *uint64, dec *frame16Decoder) string {
+	newErrs := dec.errs - *lastErr
+	*lastErr = dec.errs
 	switch {
 	case w.bad > 0:
 		return fmt.Sprintf("%d malformed frames in %v", w.bad, w.dur.Round(time.Millisecond))
 	case newErrs > 0:
-		return fmt.Sprintf("%d CAN error frames in %v: check bitrate, wiring and termination", newErrs, w.dur.Round(time.Millisecond))
+		return fmt.Sprintf("%d CAN error frames in %v, the latest: %s", newErrs, w.dur.Round(time.Millisecond), DescribeErrorFrame(dec.lastErr))
 	}
 	return ""
 }
