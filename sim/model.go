@@ -20,7 +20,46 @@ type Model struct {
 	// ChargeAs is the charge that flowed through the pack, ∫I dt in A·s
 	// (positive charging), over the model's life.
 	ChargeAs float64
+
+	// terminal voltages at current I after the latest Step, with their sum,
+	// lowest and highest; vOK is false until a Step computes them
+	v              []float64
+	vSum, vLo, vHi float64
+	vOK            bool
 }
+
+// cache computes every cell's terminal voltage at m.I in one pass.
+func (m *Model) cache() {
+	if len(m.v) != len(m.Cells) {
+		m.v = make([]float64, len(m.Cells))
+	}
+	m.vSum, m.vLo, m.vHi = 0, math.Inf(1), math.Inf(-1)
+	for k := range m.Cells {
+		x := m.Cells[k].Voltage(m.I)
+		m.v[k] = x
+		m.vSum += x
+		if x < m.vLo {
+			m.vLo = x
+		}
+		if x > m.vHi {
+			m.vHi = x
+		}
+	}
+	m.vOK = true
+}
+
+// CellVoltage is cell k's terminal voltage (k from 0) with the current of
+// the latest step flowing.
+func (m *Model) CellVoltage(k int) float64 {
+	if !m.vOK {
+		m.cache()
+	}
+	return m.v[k]
+}
+
+// Invalidate drops the cached voltages after a change made outside Step
+// (SetSOC on a cell, say).
+func (m *Model) Invalidate() { m.vOK = false }
 
 // SensorNode is one temperature sensor: a lumped thermal node heated by the
 // cells it sits on and by any conductor it touches.
@@ -38,6 +77,9 @@ type SensorNode struct {
 
 // PackVoltage is the sum of the cell terminal voltages with current i now.
 func (m *Model) PackVoltage(i float64) float64 {
+	if i == m.I && m.vOK {
+		return m.vSum
+	}
 	var v float64
 	for k := range m.Cells {
 		v += m.Cells[k].Voltage(i)
@@ -48,6 +90,9 @@ func (m *Model) PackVoltage(i float64) float64 {
 // CellVoltageRange gives the lowest and highest cell terminal voltage with
 // current i now.
 func (m *Model) CellVoltageRange(i float64) (lo, hi float64) {
+	if i == m.I && m.vOK {
+		return m.vLo, m.vHi
+	}
 	lo, hi = math.Inf(1), math.Inf(-1)
 	for k := range m.Cells {
 		v := m.Cells[k].Voltage(i)
@@ -123,6 +168,7 @@ func (m *Model) Step(i, dt float64) float64 {
 	m.I = i
 	m.T += dt
 	m.ChargeAs += i * dt
+	m.cache()
 	return i
 }
 

@@ -130,7 +130,7 @@ func (r *reporter) value(s *decode.Slot, slot int) (float64, bool) {
 				return v, false
 			}
 		}
-		v := m.Cells[n-1].Voltage(m.I)
+		v := m.CellVoltage(n - 1)
 		if len(fs.cellOffset) > 0 {
 			v += fs.cellOffset[n]
 		}
@@ -141,7 +141,7 @@ func (r *reporter) value(s *decode.Slot, slot int) (float64, bool) {
 		if n < 1 || n > len(m.Cells) || ph != PhaseCharging || !r.cv {
 			return 0, false
 		}
-		return b2f(m.Cells[n-1].Voltage(m.I) > r.minV()+balanceAboveV), false
+		return b2f(m.CellVoltage(n-1) > r.minV()+balanceAboveV), false
 	case config.BindTemp:
 		if n < 1 || n > len(m.Sensors) {
 			return 0, true
