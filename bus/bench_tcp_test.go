@@ -129,7 +129,7 @@ func BenchmarkTCPCANSource8k(b *testing.B) {
 	for _, tc := range []struct {
 		name string
 		wait time.Duration
-	}{{"batched-3ms", 0}, {"unbatched", -1}} {
+	}{{"batched-3ms", 3 * time.Millisecond}, {"batched-5ms", 5 * time.Millisecond}, {"unbatched", -1}} {
 		b.Run(tc.name, func(b *testing.B) {
 			var cpu, fps float64
 			for i := 0; i < b.N; i++ {

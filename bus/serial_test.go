@@ -114,41 +114,39 @@ func TestSerialFollowsRenamedDevice(t *testing.T) {
 }
 
 func followRenamed(t *testing.T, byPath bool, usb func(string) bus.PortInfo) {
-	{
-		first, second := newPtyDev(t), newPtyDev(t)
-		if first.slaveName() == second.slaveName() {
-			t.Fatal("ptys share a name")
-		}
-		ports := &fakePorts{}
-		ports.set(usb(first.slaveName()))
-		dev := "usb:abcd:1234:BENCH1"
-		if byPath {
-			dev = first.slaveName()
-		}
-		spec := testSpec(bus.KindSerialText, dev)
-		spec.Ports = ports.list
-		rec := runSource(t, mustOpen(t, spec))
-		rec.WaitStatus(t, bus.StateConnected, 1)
-		textDriver{first}.Send(t, 0, 3)
-		rec.WaitFor(t, "3 lines", func(ev []bustest.Event) bool { return len(dataSeqsOf(textDriver{first}, ev)) == 3 })
-		first.Close()
-		rec.WaitStatus(t, bus.StateDisconnected, 1)
-		ports.set(usb(second.slaveName()))
-		rec.WaitStatus(t, bus.StateConnected, 2)
-		textDriver{second}.Send(t, 3, 3)
-		rec.WaitFor(t, "6 lines", func(ev []bustest.Event) bool { return len(dataSeqsOf(textDriver{second}, ev)) == 6 })
-		sts := rec.Statuses()
-		last := ""
-		for _, s := range sts {
-			if s.State == bus.StateConnected {
-				last = s.Reason
-			}
-		}
-		if !strings.Contains(last, second.slaveName()) {
-			t.Errorf("byPath=%v: connected to %q, want %s", byPath, last, second.slaveName())
-		}
-		second.Close()
+	first, second := newPtyDev(t), newPtyDev(t)
+	if first.slaveName() == second.slaveName() {
+		t.Fatal("ptys share a name")
 	}
+	ports := &fakePorts{}
+	ports.set(usb(first.slaveName()))
+	dev := "usb:abcd:1234:BENCH1"
+	if byPath {
+		dev = first.slaveName()
+	}
+	spec := testSpec(bus.KindSerialText, dev)
+	spec.Ports = ports.list
+	rec := runSource(t, mustOpen(t, spec))
+	rec.WaitStatus(t, bus.StateConnected, 1)
+	textDriver{first}.Send(t, 0, 3)
+	rec.WaitFor(t, "3 lines", func(ev []bustest.Event) bool { return len(dataSeqsOf(textDriver{first}, ev)) == 3 })
+	first.Close()
+	rec.WaitStatus(t, bus.StateDisconnected, 1)
+	ports.set(usb(second.slaveName()))
+	rec.WaitStatus(t, bus.StateConnected, 2)
+	textDriver{second}.Send(t, 3, 3)
+	rec.WaitFor(t, "6 lines", func(ev []bustest.Event) bool { return len(dataSeqsOf(textDriver{second}, ev)) == 6 })
+	sts := rec.Statuses()
+	last := ""
+	for _, s := range sts {
+		if s.State == bus.StateConnected {
+			last = s.Reason
+		}
+	}
+	if !strings.Contains(last, second.slaveName()) {
+		t.Errorf("byPath=%v: connected to %q, want %s", byPath, last, second.slaveName())
+	}
+	second.Close()
 }
 
 func dataSeqsOf(d bustest.Driver, ev []bustest.Event) []int {
@@ -177,24 +175,35 @@ func TestSerialWrongBaudHint(t *testing.T) {
 }
 
 func wrongBaud(t *testing.T, kind string, garbage []byte) {
-	{
-		p := newPtyDev(t)
-		spec := testSpec(kind, p.link)
-		spec.Quiet = 300 * time.Millisecond
-		src := mustOpen(t, spec)
-		rec := runSource(t, src)
-		rec.WaitStatus(t, bus.StateConnected, 1)
-		if kind == bus.KindSerialCAN {
-			waitUntil(t, "open sequence", func() bool { return strings.Contains(p.written(), "L\r") })
-		}
-		p.write(t, garbage)
-		rec.WaitFor(t, kind+": unreadable input hint", hasReason("unreadable input: check baud rate"))
-		st := src.(interface{ Stats() bus.Stats }).Stats()
-		if st.Bytes != uint64(len(garbage)) || st.Bad == 0 {
-			t.Errorf("%s: stats %+v", kind, st)
-		}
-		t.Cleanup(p.Close)
+	p := newPtyDev(t)
+	spec := testSpec(kind, p.link)
+	spec.Quiet = 300 * time.Millisecond
+	src := mustOpen(t, spec)
+	rec := runSource(t, src)
+	rec.WaitStatus(t, bus.StateConnected, 1)
+	if kind == bus.KindSerialCAN {
+		waitUntil(t, "open sequence", func() bool { return strings.Contains(p.written(), "L\r") })
 	}
+	p.write(t, garbage)
+	rec.WaitFor(t, kind+": unreadable input hint", hasReason("unreadable input: check baud rate"))
+	st := src.(interface{ Stats() bus.Stats }).Stats()
+	if st.Bytes != uint64(len(garbage)) || st.Bad == 0 {
+		t.Errorf("%s: stats %+v", kind, st)
+	}
+	t.Cleanup(p.Close)
+}
+
+// An adapter that answers the open sequence with BEL (it refuses a command,
+// for instance listen-only mode) is reported in words.
+func TestSerialCANRefusedHint(t *testing.T) {
+	p := newPtyDev(t)
+	defer p.Close()
+	spec := testSpec(bus.KindSerialCAN, p.link)
+	spec.Quiet = 300 * time.Millisecond
+	rec := runSource(t, mustOpen(t, spec))
+	waitUntil(t, "open sequence", func() bool { return strings.Contains(p.written(), "C\rL\r") })
+	p.write(t, []byte("\r\a"))
+	rec.WaitFor(t, "refusal hint", hasReason("refused 1 command(s) (BEL)"))
 }
 
 func TestSerialNoBytesHint(t *testing.T) {

@@ -20,6 +20,7 @@ type serialCANAdapter struct {
 	dial    *serialDialer
 	openSeq []byte
 	dec     SLCANDecoder
+	lastRef uint64 // refusals counted at the last hint
 }
 
 func newSerialCANAdapter(spec Spec) *serialCANAdapter {
@@ -78,9 +79,19 @@ func (a *serialCANAdapter) overran(w window) bool {
 }
 
 func (a *serialCANAdapter) hint(w window) string {
+	refusals := a.dec.Stats().Refusals
+	newRef := refusals - a.lastRef
+	a.lastRef = refusals
 	if w.bytes >= 64 && (w.good == 0 || w.bad > w.good) {
 		return fmt.Sprintf("unreadable input: check baud rate (%d bytes, %d frames, %d malformed lines in %v)",
 			w.bytes, w.good, w.bad, w.dur.Round(time.Millisecond))
+	}
+	if newRef > 0 && w.good == 0 {
+		mode := "listen-only mode (L)"
+		if a.spec.Normal {
+			mode = "normal mode (O)"
+		}
+		return fmt.Sprintf("the adapter refused %d command(s) (BEL) and sends no frames: it may not support %s or the bitrate command, or not speak this protocol", newRef, mode)
 	}
 	if a.overran(w) {
 		capacity := float64(a.spec.Baud) / serialCharBits(a.spec)
