@@ -22,7 +22,7 @@ type Model struct {
 	ChargeAs float64
 
 	// terminal voltages at current I after the latest Step, with their sum,
-	// lowest and highest; vOK is false until a Step computes them
+	// lowest and highest, computed on first use after each Step
 	v              []float64
 	vSum, vLo, vHi float64
 	vOK            bool
@@ -77,7 +77,10 @@ type SensorNode struct {
 
 // PackVoltage is the sum of the cell terminal voltages with current i now.
 func (m *Model) PackVoltage(i float64) float64 {
-	if i == m.I && m.vOK {
+	if i == m.I {
+		if !m.vOK {
+			m.cache()
+		}
 		return m.vSum
 	}
 	var v float64
@@ -90,7 +93,10 @@ func (m *Model) PackVoltage(i float64) float64 {
 // CellVoltageRange gives the lowest and highest cell terminal voltage with
 // current i now.
 func (m *Model) CellVoltageRange(i float64) (lo, hi float64) {
-	if i == m.I && m.vOK {
+	if i == m.I {
+		if !m.vOK {
+			m.cache()
+		}
 		return m.vLo, m.vHi
 	}
 	lo, hi = math.Inf(1), math.Inf(-1)
@@ -168,7 +174,7 @@ func (m *Model) Step(i, dt float64) float64 {
 	m.I = i
 	m.T += dt
 	m.ChargeAs += i * dt
-	m.cache()
+	m.vOK = false // computed in one pass when first asked for
 	return i
 }
 
