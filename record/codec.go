@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"hash/crc32"
+	"math"
 	"math/bits"
 
 	"packwatch/bus"
@@ -134,10 +135,17 @@ func (e *blockEncoder) full() bool {
 	return e.n >= MaxBlockMessages || len(e.keys) >= maxBlockKeys || len(e.body) >= maxBlockBytes
 }
 
-// floorMicros converts ns to µs rounding toward minus infinity.
+// The range of recordable times in µs: back in ns, they fit an int64.
+const (
+	minMicros = math.MinInt64 / 1000 // truncated toward zero: -9223372036854775
+	maxMicros = math.MaxInt64 / 1000
+)
+
+// floorMicros converts ns to µs rounding toward minus infinity (within the
+// recordable range: the first 808 ns of int64 time are stored as minMicros).
 func floorMicros(t int64) int64 {
 	q := t / 1000
-	if t%1000 < 0 {
+	if t%1000 < 0 && q > minMicros {
 		q--
 	}
 	return q
@@ -276,7 +284,7 @@ func (d *blockDecoder) decode(b []byte, dst []bus.Message) ([]bus.Message, error
 		return dst, corrupt("bad message count")
 	}
 	base, n := binary.Varint(body[p:])
-	if n <= 0 {
+	if n <= 0 || base < minMicros || base > maxMicros {
 		return dst, corrupt("bad base time")
 	}
 	p += n
@@ -329,10 +337,16 @@ func (d *blockDecoder) decode(b []byte, dst []bus.Message) ([]bus.Message, error
 		if si >= uint64(len(d.slots)) {
 			return dst[:start], corrupt("message %d refers to slot %d of %d", i, si, len(d.slots))
 		}
+		if dt > maxMicros-minMicros {
+			return dst[:start], corrupt("time step out of range at message %d", i)
+		}
 		if tag&1 != 0 {
 			t -= int64(dt)
 		} else {
 			t += int64(dt)
+		}
+		if t < minMicros || t > maxMicros {
+			return dst[:start], corrupt("time out of range at message %d", i)
 		}
 		s := &d.slots[si]
 		m := &out[i]

@@ -3,6 +3,10 @@ package record
 import (
 	"encoding/binary"
 	"errors"
+	"fmt"
+	"math"
+	"os"
+	"strings"
 	"math/rand/v2"
 	"reflect"
 	"testing"
@@ -130,6 +134,8 @@ func TestCodecTable(t *testing.T) {
 		{"remote with dlc", bus.Message{T: 0, Kind: bus.KindCAN, Frame: can.Frame{ID: 0x123, Length: 4, IsRemote: true}}},
 		{"length 15", bus.Message{T: 0, Kind: bus.KindCAN, Frame: can.Frame{ID: 0x7FF, Length: 15, Data: can.Data{1, 2, 3, 4, 5, 6, 7, 8}}}},
 		{"empty line", bus.Message{T: 9e18, Kind: bus.KindLine}},
+		{"earliest time", bus.Message{T: math.MinInt64, Kind: bus.KindLine, Text: "a"}},
+		{"latest time", bus.Message{T: math.MaxInt64, Kind: bus.KindLine, Text: "z"}},
 		{"line", bus.Message{T: 9e18, Src: 65535, Kind: bus.KindLine, Text: "V1=3.712 V2=3.709"}},
 		{"gap", bus.Message{T: 1, Kind: bus.KindGap, Text: "suspend 12 s"}},
 		{"error frame", bus.Message{T: 1, Kind: bus.KindError, Frame: can.Frame{ID: 0x20000004, Length: 8, Data: can.Data{0, 8}}}},
@@ -154,6 +160,20 @@ func TestCodecTable(t *testing.T) {
 }
 
 // TestCodecLayout pins the byte layout documented in codec.go and SCHEMA.md.
+func TestCodecExtremeTimes(t *testing.T) {
+	msgs := []bus.Message{{T: math.MaxInt64, Kind: bus.KindGap}, {T: math.MinInt64, Kind: bus.KindGap}, {T: math.MaxInt64, Kind: bus.KindGap}}
+	var d blockDecoder
+	got, err := d.decode(encodeAll(msgs)[0], nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i := range msgs {
+		if want := expected(msgs[i]); got[i] != want {
+			t.Errorf("%d: %+v, want %+v", i, got[i], want)
+		}
+	}
+}
+
 func TestCodecLayout(t *testing.T) {
 	msgs := []bus.Message{
 		{T: 1_000_000, Kind: bus.KindCAN, Frame: can.Frame{ID: 0x123, Length: 2, Data: can.Data{0x10, 0x20}}},
@@ -174,6 +194,14 @@ func TestCodecLayout(t *testing.T) {
 	)
 	if len(b) != len(want)+4 || string(b[:len(want)]) != string(want) {
 		t.Fatalf("block % x\nwant    % x + crc", b, want)
+	}
+	// SCHEMA.md shows the same example.
+	doc, err := os.ReadFile("SCHEMA.md")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if hex := fmt.Sprintf("`% x`", want); !strings.Contains(string(doc), hex) {
+		t.Errorf("SCHEMA.md does not show the example block %s", hex)
 	}
 }
 
