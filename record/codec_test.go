@@ -5,10 +5,10 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"os"
-	"strings"
 	"math/rand/v2"
+	"os"
 	"reflect"
+	"strings"
 	"testing"
 
 	"go.einride.tech/can"
