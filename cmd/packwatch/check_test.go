@@ -14,6 +14,7 @@ import (
 	"packwatch/check"
 	"packwatch/config"
 	"packwatch/decode"
+	"packwatch/record"
 	"packwatch/sim"
 )
 
@@ -165,3 +166,53 @@ func TestCheckCLI(t *testing.T) {
 		}
 	}
 }
+
+// A recording of the pod (made by the simulator) checked with --replay: the
+// last 10 s, a go with the checklist confirmed; the report says it is a replay.
+func TestCheckReplay(t *testing.T) {
+	dir := t.TempDir()
+	pod := "../../check/testdata/pod.toml"
+	p, err := config.Load(pod)
+	if err != nil {
+		t.Fatal(err)
+	}
+	m, err := decode.Compile(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	start := time.Date(2026, 5, 1, 8, 0, 0, 0, time.UTC)
+	meta := record.Meta{Tool: "packwatch", Version: "test", Start: start, Mode: "simulated",
+		Sources: []record.SourceInfo{{Index: 0, Name: "bms", Kind: "socketcan"}, {Index: 1, Name: "console", Kind: "serial-text"}}}
+	recPath := filepath.Join(dir, "pod.db")
+	w, err := record.Create(recPath, meta, record.Options{Lossless: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := sim.New(m, sim.Options{Speed: sim.SpeedMax, Start: start, Seed: 3, For: 30 * time.Second})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := s.Run(context.Background(), recordSink{w}); err != nil {
+		t.Fatal(err)
+	}
+	if err := w.Close(); err != nil {
+		t.Fatal(err)
+	}
+	code, out, errOut := runCheckCLI(t, filepath.Join(dir, "checks.db"), "--profile", pod, "--replay", recPath, "--for", "10s", "--confirm", "all", "--json")
+	if code != exitOK {
+		t.Fatalf("exit %d\n%s%s", code, out, errOut)
+	}
+	var rec check.Record
+	if err := json.Unmarshal([]byte(out), &rec); err != nil {
+		t.Fatal(err)
+	}
+	if rec.Data.Mode != check.ModeReplay || !rec.Data.Simulated || !strings.Contains(rec.Data.Notice, "FROM A RECORDING, NOT LIVE, SIMULATED DATA") ||
+		rec.Data.Seconds != 10 || rec.Raw.Messages < 300 {
+		t.Errorf("data %+v raw %d", rec.Data, rec.Raw.Messages)
+	}
+}
+
+type recordSink struct{ w *record.Writer }
+
+func (r recordSink) Deliver(b []bus.Message) { r.w.Write(b) }
+func (r recordSink) Status(bus.Status)       {}
