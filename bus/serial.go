@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"runtime"
 	"strings"
 	"time"
 
@@ -165,13 +166,47 @@ func describeSerialErr(err error) error {
 }
 
 // serialLink adapts a serial.Port to link: the port already returns (0, nil)
-// on its read timeout.
-type serialLink struct{ serial.Port }
+// on its read timeout. While the port is quiet it checks every few seconds
+// that the device still exists, since some drivers (notably on Windows) keep
+// timing out instead of failing after an unplug.
+type serialLink struct {
+	serial.Port
+	path      string
+	lastCheck time.Time
+}
 
-func (l serialLink) Read(p []byte) (int, error) {
+// presenceEvery is how often a quiet port is checked for presence.
+const presenceEvery = 2 * time.Second
+
+func (l *serialLink) Read(p []byte) (int, error) {
 	n, err := l.Port.Read(p)
 	if err != nil {
 		return n, fmt.Errorf("read: %w", err)
 	}
+	if n == 0 && time.Since(l.lastCheck) >= presenceEvery {
+		l.lastCheck = time.Now()
+		if !portPresent(l.path) {
+			return 0, fmt.Errorf("read: %s is gone", l.path)
+		}
+	}
 	return n, nil
+}
+
+// portPresent reports whether a serial port still exists: its device node on
+// Unix, its name in the port list on Windows.
+func portPresent(path string) bool {
+	if runtime.GOOS != "windows" {
+		_, err := os.Stat(path)
+		return err == nil
+	}
+	names, err := serial.GetPortsList()
+	if err != nil {
+		return true // cannot tell: keep reading
+	}
+	for _, n := range names {
+		if strings.EqualFold(n, path) {
+			return true
+		}
+	}
+	return false
 }

@@ -1,9 +1,12 @@
+//go:build unix
+
 package bus_test
 
 import (
 	"context"
 	"errors"
 	"math/rand/v2"
+	"os"
 	"strings"
 	"sync"
 	"testing"
@@ -275,4 +278,18 @@ func TestOpenErrors(t *testing.T) {
 			t.Errorf("Open(%+v): %v", spec, err)
 		}
 	}
+}
+
+// Some drivers keep a vanished port timing out instead of failing; a quiet
+// port whose device node (here the profile's symlink, as a udev rule makes)
+// disappears is treated as unplugged within a few seconds.
+func TestSerialQuietPortGone(t *testing.T) {
+	p := newPtyDev(t)
+	defer p.Close()
+	rec := runSource(t, mustOpen(t, testSpec(bus.KindSerialText, p.link)))
+	rec.WaitStatus(t, bus.StateConnected, 1)
+	if err := os.Remove(p.link); err != nil {
+		t.Fatal(err)
+	}
+	rec.WaitFor(t, "disconnected: gone", hasReason("is gone"))
 }

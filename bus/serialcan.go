@@ -45,7 +45,7 @@ func (a *serialCANAdapter) connect(ctx context.Context, idle time.Duration) (lin
 	} else {
 		desc += ", listen-only"
 	}
-	return serialLink{p}, desc, nil
+	return &serialLink{Port: p, path: a.dial.path, lastCheck: time.Now()}, desc, nil
 }
 
 func (a *serialCANAdapter) decode(p []byte, t int64, src uint16, out []Message) []Message {
@@ -58,7 +58,7 @@ func (a *serialCANAdapter) decode(p []byte, t int64, src uint16, out []Message) 
 func (a *serialCANAdapter) reset() { a.dec.Reset() }
 
 func (a *serialCANAdapter) shutdown(l link) {
-	if sl, ok := l.(serialLink); ok {
+	if sl, ok := l.(*serialLink); ok {
 		_, _ = sl.Write([]byte(SLCANCloseCommand))
 	}
 }

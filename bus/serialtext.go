@@ -22,7 +22,7 @@ func (a *serialTextAdapter) connect(ctx context.Context, idle time.Duration) (li
 	if err != nil {
 		return nil, "", err
 	}
-	return serialLink{p}, desc, nil
+	return &serialLink{Port: p, path: a.dial.path, lastCheck: time.Now()}, desc, nil
 }
 
 func (a *serialTextAdapter) decode(p []byte, t int64, src uint16, out []Message) []Message {
