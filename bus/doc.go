@@ -10,6 +10,11 @@
 // that nothing downstream integrates across the hole. A LiveClock reports
 // suspends and clock steps the same way.
 //
+// Every message of one read carries the same T, the data time at which the
+// read returned: with the default 5 ms batch wait that is within a few
+// milliseconds of arrival. (An slcan adapter's own millisecond timestamps are
+// parsed and counted but not used for T.)
+//
 // One adapter a file: socketcan (Linux only), serial-can (the ASCII serial
 // line CAN protocol of the Linux slcan driver), serial-text (a console that
 // prints lines) and tcp-can (the 16-byte SocketCAN frame layout over TCP). The

@@ -51,7 +51,7 @@ type Spec struct {
 	// return early with ctx.Err() when ctx is done. Tests inject their own.
 	Sleep func(ctx context.Context, d time.Duration) error
 	// BatchWait is how long a source waits after a read before the next one,
-	// so that one wake-up reads many frames (default 3 ms; negative: none).
+	// so that one wake-up reads many frames (default 5 ms; negative: none).
 	BatchWait time.Duration
 	// Quiet is how long a connected source may see no bytes before it says
 	// so in its status (default 5 s).
@@ -143,7 +143,7 @@ func (s Spec) withDefaults() Spec {
 		s.Sleep = sleepCtx
 	}
 	if s.BatchWait == 0 {
-		s.BatchWait = 3 * time.Millisecond
+		s.BatchWait = 5 * time.Millisecond
 	}
 	if s.Quiet <= 0 {
 		s.Quiet = 5 * time.Second
