@@ -264,16 +264,15 @@ func (w *Writer) Write(batch []bus.Message) {
 		return
 	}
 	for i := range batch {
-		if !w.enc.add(&batch[i]) {
-			w.invalid++
-			continue
-		}
 		if w.enc.full() {
 			w.sealLocked(false)
 			if w.stopped { // stopped while waiting for room
-				w.dropped += uint64(len(batch) - i - 1)
+				w.dropped += uint64(len(batch) - i)
 				return
 			}
+		}
+		if !w.enc.add(&batch[i]) {
+			w.invalid++
 		}
 	}
 }
@@ -281,15 +280,17 @@ func (w *Writer) Write(batch []bus.Message) {
 // sealLocked seals the current block into the queue. From the writer
 // goroutine (force) the block is always queued.
 func (w *Writer) sealLocked(force bool) {
-	if w.enc.n == 0 {
-		return
-	}
-	for !force && len(w.queue) >= w.opt.QueueBlocks {
+	for w.enc.n > 0 && !force && len(w.queue) >= w.opt.QueueBlocks {
 		if !w.opt.Lossless || w.stopped {
 			w.dropLocked()
 			return
 		}
+		// Waiting releases the lock: the writer goroutine's tick may seal
+		// this block meanwhile, another Write may fill the next one.
 		w.room.Wait()
+	}
+	if w.enc.n == 0 {
+		return
 	}
 	var buf []byte
 	if n := len(w.free); n > 0 {
