@@ -184,6 +184,7 @@
     state.everLive = true;
     pushHistory(s);
     render();
+    liveness();
   }
 
   function render() {
@@ -193,7 +194,7 @@
     var mode = s.mode || "live";
     var m = $("mode");
     m.hidden = mode === "live";
-    m.textContent = mode === "replay" ? "REPLAY" : mode === "simulated" ? "DEMO: SIMULATED DATA" : "";
+    m.textContent = mode === "replay" ? "REPLAY: RECORDED DATA" : mode === "simulated" ? "SIMULATED DATA" : "";
     if (state.packIdx >= s.packs.length) state.packIdx = 0;
     renderPackTabs(s);
     var p = s.packs[state.packIdx];
@@ -258,6 +259,7 @@
     var span = hi - lo;
     var pos = function (v) { return Math.max(0, Math.min(100, (v - lo) / span * 100)); };
     var box = $("cell-bars");
+    box.className = "cellbars" + (p.cells.length <= 16 ? " few" : p.cells.length > 120 ? " many" : "");
     var key = p.id + ":" + p.cells.length + ":" + lo + ":" + hi + ":" + warn;
     if (state.cellKey !== key) {
       box.textContent = "";
@@ -288,7 +290,9 @@
       var row = rows[i];
       if (!row) return;
       var cs = c.state || "missing";
-      var cls = "cell st-" + cs + (c.is_min ? " is-min" : "") + (c.is_max ? " is-max" : "") + (c.balancing ? " bal" : "");
+      var spread = p.cell_stats.min_cell !== p.cell_stats.max_cell;
+      var isMin = c.is_min && spread, isMax = c.is_max && spread;
+      var cls = "cell st-" + cs + (isMin ? " is-min" : "") + (isMax ? " is-max" : "") + (c.balancing ? " bal" : "");
       if (row.className !== cls) row.className = cls;
       var tr = row.children[1];
       var fill = tr.children[2], avg = tr.children[3];
@@ -304,8 +308,8 @@
       if (cs === "stale") tag.push("stale " + dur(c.age_s));
       if (cs === "missing") tag.push("no data");
       var plain = tag.length === 0;
-      if (c.is_max) tag.push(plain ? "\u25b2max" : "\u25b2");
-      if (c.is_min) tag.push(plain ? "\u25bcmin" : "\u25bc");
+      if (isMax) tag.push(plain ? "\u25b2max" : "\u25b2");
+      if (isMin) tag.push(plain ? "\u25bcmin" : "\u25bc");
       if (c.balancing) tag.push("\u21c4");
       row.children[3].textContent = tag.join(" ");
     });
@@ -327,8 +331,10 @@
 
   // renderScale draws the limit scale above each column of bars.
   function renderScale(box, lo, hi, warn) {
-    var cols = getComputedStyle(box).gridTemplateColumns.split(" ").filter(Boolean).length || 1;
+    var tmpl = getComputedStyle(box).gridTemplateColumns;
+    var cols = tmpl.split(" ").filter(Boolean).length || 1;
     var sc = $("cell-scale");
+    if (sc.style.gridTemplateColumns !== tmpl) sc.style.gridTemplateColumns = tmpl; // same columns as the bars
     var key = cols + ":" + lo + ":" + hi + ":" + warn;
     if (sc.getAttribute("data-key") === key) return;
     sc.textContent = "";
@@ -400,16 +406,21 @@
     var tb = $("margin-rows");
     var ms = p.margins || [];
     while (tb.children.length > ms.length) tb.removeChild(tb.lastChild);
+    var heads = ["", "now", "trip at", "margin", "reached in"];
     while (tb.children.length < ms.length) {
       var tr = el("tr");
-      for (var k = 0; k < 5; k++) tr.appendChild(el(k ? "td" : "th"));
+      for (var k = 0; k < 5; k++) {
+        var c = el(k ? "td" : "th");
+        if (k) c.setAttribute("data-label", heads[k]);
+        tr.appendChild(c);
+      }
       tb.appendChild(tr);
     }
     ms.forEach(function (m, i) {
       var tr = tb.children[i];
       var d = m.unit === "V" ? 3 : unitDigits(m.unit); // cell-level volts: millivolts matter
       tr.className = "st-" + m.state;
-      tr.children[0].textContent = (STATE_WORD[m.state] || m.state) + "  " + m.label + (m.subject ? " (" + m.subject + ")" : "");
+      tr.children[0].textContent = (m.state === "ok" ? "\u2713" : STATE_WORD[m.state] || m.state) + " " + m.label + (m.subject ? " (" + m.subject + ")" : "");
       tr.children[1].textContent = fmt(m.value, d, m.unit);
       tr.children[2].textContent = fmt(m.bound, d, m.unit);
       tr.children[3].textContent = isNum(m.margin) ? (m.margin < 0 ? "past by " + fmt(-m.margin, d, m.unit) : fmt(m.margin, d, m.unit)) : "--";
