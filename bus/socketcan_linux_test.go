@@ -9,6 +9,7 @@ import (
 	"os"
 	"strings"
 	"sync"
+	"syscall"
 	"testing"
 
 	"go.einride.tech/can"
@@ -156,14 +157,31 @@ func TestSocketCANErrorFrames(t *testing.T) {
 	if st.ErrorFrames != 1 || st.Messages != 2 {
 		t.Errorf("stats %+v", st)
 	}
-	rec.WaitFor(t, "an error frame hint", func(ev []bustest.Event) bool {
+	rec.WaitFor(t, "an error frame hint in words", func(ev []bustest.Event) bool {
 		for _, e := range ev {
-			if !e.IsMsg && strings.Contains(e.Status.Reason, "error frames") {
+			if !e.IsMsg && strings.Contains(e.Status.Reason, "1 CAN error frames") && strings.Contains(e.Status.Reason, "error-warning") {
 				return true
 			}
 		}
 		return false
 	})
+	// packwatch never writes to a CAN socket: nothing is queued on the far
+	// end (one non-blocking read, which reports EAGAIN when empty).
+	rc, err := c.(syscall.Conn).SyscallConn()
+	if err != nil {
+		t.Fatal(err)
+	}
+	var n int
+	var rerr error
+	if err := rc.Read(func(fd uintptr) bool {
+		n, rerr = unix.Read(int(fd), make([]byte, 64))
+		return true
+	}); err != nil {
+		t.Fatal(err)
+	}
+	if !errors.Is(rerr, unix.EAGAIN) {
+		t.Errorf("the source wrote to its socket: read %d bytes, %v", n, rerr)
+	}
 }
 
 // TestSocketCANVcan runs against a real vcan interface where the kernel has
