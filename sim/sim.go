@@ -39,6 +39,10 @@ type Options struct {
 	// For ends Run (returning nil) after this much simulated time; 0 runs
 	// until the context ends.
 	For time.Duration
+	// Now and Ticks are the wall clock that paces Run; nil: time.Now and a
+	// 20 ms ticker. A test sets both and drives Ticks itself.
+	Now   func() time.Time
+	Ticks <-chan time.Time
 }
 
 // defaultShowTime is how long the default speed takes to show a story.
@@ -78,6 +82,7 @@ type Sim struct {
 	rng      *rand.Rand
 	encErrs  int
 	paused   bool
+	pauses   uint64            // Pause calls, so that Run notices even a short pause
 	unknown  map[uint16]uint32 // per CAN source, an ID the profile does not know
 	hasCAN   map[uint16]bool
 
@@ -232,6 +237,7 @@ func (s *Sim) EncodeErrors() int {
 func (s *Sim) Pause() {
 	s.mu.Lock()
 	s.paused = true
+	s.pauses++
 	s.mu.Unlock()
 	s.poke()
 }
@@ -507,23 +513,27 @@ func (s *Sim) Run(ctx context.Context, sink bus.Sink) error {
 	if s.opt.For > 0 {
 		end = int64(s.opt.For)
 	}
-	const frame = 20 * time.Millisecond
-	var timer *time.Timer
-	if !math.IsInf(s.speed, 1) {
-		timer = time.NewTimer(frame)
-		defer timer.Stop()
+	now, ticks := s.opt.Now, s.opt.Ticks
+	if now == nil {
+		now = time.Now
 	}
-	wallAnchor, simAnchor := time.Now(), s.now()
-	wasPaused := false
+	if ticks == nil && !math.IsInf(s.speed, 1) {
+		tk := time.NewTicker(20 * time.Millisecond)
+		defer tk.Stop()
+		ticks = tk.C
+	}
+	wallAnchor, simAnchor := now(), s.now()
+	s.mu.Lock()
+	seenPauses := s.pauses
+	s.mu.Unlock()
 	for {
 		s.mu.Lock()
-		paused, through := s.paused, s.through
+		paused, through, pauses := s.paused, s.through, s.pauses
 		s.mu.Unlock()
 		if through >= end {
 			return nil
 		}
 		if paused {
-			wasPaused = true
 			select {
 			case <-ctx.Done():
 				return nil
@@ -533,11 +543,13 @@ func (s *Sim) Run(ctx context.Context, sink bus.Sink) error {
 			}
 			continue
 		}
-		if wasPaused {
-			wasPaused = false
-			wallAnchor, simAnchor = time.Now(), through
+		if pauses != seenPauses {
+			// paused since the anchor (however briefly): the wall time
+			// until now does not count
+			seenPauses = pauses
+			wallAnchor, simAnchor = now(), through
 		}
-		if timer == nil { // as fast as it can
+		if math.IsInf(s.speed, 1) { // as fast as it can
 			select {
 			case <-ctx.Done():
 				return nil
@@ -563,10 +575,9 @@ func (s *Sim) Run(ctx context.Context, sink bus.Sink) error {
 			continue
 		case <-s.wake:
 			continue
-		case <-timer.C:
-			timer.Reset(frame)
+		case <-ticks:
 		}
-		target := simAnchor + int64(float64(time.Since(wallAnchor))*s.speed)
+		target := simAnchor + int64(float64(now().Sub(wallAnchor))*s.speed)
 		s.mu.Lock()
 		s.generate(min(target, end))
 		s.mu.Unlock()

@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"sync/atomic"
 	"testing"
 	"time"
 
@@ -201,5 +202,51 @@ func TestRunStopsOnCancel(t *testing.T) {
 	}
 	if err := s.Run(ctx, sink); err != nil { // a cancelled context ends a second Run at once
 		t.Fatal(err)
+	}
+}
+
+// Pacing on an injected wall clock: at speed 50, 10 s of wall time is 500 s
+// of data time, and paused wall time does not count.
+func TestRunPacing(t *testing.T) {
+	var wall atomic.Int64
+	base := time.Date(2026, 1, 1, 0, 0, 0, 0, time.UTC)
+	ticks := make(chan time.Time)
+	s, dm := newBuoySim(t, Options{Speed: 50,
+		Now:   func() time.Time { return base.Add(time.Duration(wall.Load())) },
+		Ticks: ticks})
+	sink := newDecodeSink(dm)
+	ctx, cancel := context.WithCancel(context.Background())
+	done := make(chan error, 1)
+	go func() { done <- s.Run(ctx, sink) }()
+	defer func() {
+		cancel()
+		if err := <-done; err != nil {
+			t.Error(err)
+		}
+	}()
+	tick := func() { ticks <- time.Time{} } // returns once Run has taken it
+	elapsed := func(want time.Duration) {
+		t.Helper()
+		tick() // the one before is processed once Run takes this one
+		if got := s.State().Elapsed; got != want {
+			t.Fatalf("elapsed %v, want %v", got, want)
+		}
+	}
+	tick() // Run has started and taken its anchor
+	wall.Add(int64(10 * time.Second))
+	tick()
+	elapsed(500 * time.Second)
+	s.Pause()
+	wall.Add(int64(100 * time.Second)) // paused: does not count
+	s.Resume()
+	tick() // Run re-anchors before it takes this one
+	wall.Add(int64(2 * time.Second))
+	tick()
+	elapsed(600 * time.Second)
+	// 0 to 600 s inclusive: 0x4C0 at 0 + k·100 ms (6001), 0x4D0 at 1 ms +
+	// k·50 ms (12000), 0x4E0 at 2 ms + k·500 ms (1200), 12 console lines at
+	// 0.5 ms + k·1 s (7200)
+	if n := sink.count(); n != 26401 {
+		t.Errorf("%d messages for 600 s, want 26401", n)
 	}
 }
