@@ -235,3 +235,19 @@ func BenchmarkDecode(b *testing.B) {
 		}
 	}
 }
+
+// BenchmarkOpen opens a recording of 2 M frames (header, schema, quick_check,
+// metadata). Metric: MB/s of file checked.
+func BenchmarkOpen(b *testing.B) {
+	path := scanFile(b, 2<<20)
+	st, _ := os.Stat(path)
+	b.ResetTimer()
+	for range b.N {
+		r, err := Open(path)
+		if err != nil {
+			b.Fatal(err)
+		}
+		r.Close()
+	}
+	b.ReportMetric(float64(st.Size())/1e6*float64(b.N)/b.Elapsed().Seconds(), "MB/s")
+}
