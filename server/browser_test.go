@@ -163,6 +163,23 @@ func TestBrowserEndToEnd(t *testing.T) {
 	}
 	eng.mu.Unlock()
 
+	// The bus view: opened, it subscribes and lists every ID, unknown ones marked.
+	if err := chromedp.Do(ctx, chromedp.Click(chromedp.CSS(`#bus summary`))); err != nil {
+		t.Fatalf("open bus view: %v", err)
+	}
+	waitJS(t, ctx, "bus view rows", `(() => { const u = document.querySelector('#bus-body tr.unknown'); const rows = document.querySelectorAll('#bus-body tbody tr'); return rows.length === 2 && !!u && u.textContent.includes('0x7FF') && u.textContent.includes('unknown') && document.getElementById('bus-body').textContent.includes('bus load 23.5'); })()`, 30*time.Second)
+	screenshot(t, ctx, "dashboard-bus-1400x900.png")
+
+	// Outdoor theme: black on white for sunlight.
+	if err := chromedp.Do(ctx, chromedp.Click(chromedp.CSS(`#theme`))); err != nil {
+		t.Fatal(err)
+	}
+	waitJS(t, ctx, "outdoor theme", `document.documentElement.dataset.theme === 'outdoor' && getComputedStyle(document.documentElement).backgroundColor === 'rgb(255, 255, 255)'`, 30*time.Second)
+	screenshot(t, ctx, "dashboard-outdoor-1400x900.png")
+	if err := chromedp.Do(ctx, chromedp.Click(chromedp.CSS(`#theme`))); err != nil {
+		t.Fatal(err)
+	}
+
 	// Phone width: nothing wider than the screen.
 	if err := chromedp.Do(ctx, chromedp.EmulateViewport(390, 844, chromedp.EmulateMobile)); err != nil {
 		t.Fatal(err)
