@@ -1,6 +1,10 @@
 package metrics
 
-import "github.com/prometheus/client_golang/prometheus"
+import (
+	"strings"
+
+	"github.com/prometheus/client_golang/prometheus"
+)
 
 // Label names.
 const (
@@ -51,7 +55,11 @@ type descs struct {
 
 func newDescs() *descs {
 	d := func(name, help string, labels ...string) *prometheus.Desc {
-		return prometheus.NewDesc("packwatch_"+name, help, labels, nil)
+		var opts []prometheus.DescOpt
+		if u := unitOf(name); u != "" {
+			opts = append(opts, prometheus.WithUnit(u))
+		}
+		return prometheus.V2.NewDesc("packwatch_"+name, help, prometheus.UnconstrainedLabels(labels), nil, opts...)
 	}
 	pk := []string{lPack}
 	src := []string{lPack, lSource}
@@ -104,4 +112,20 @@ func newDescs() *descs {
 			"The limit itself, from the profile (the discharge current limit is negative).", lPack, lLimit)
 	}
 	return x
+}
+
+// baseUnits are the units metric names end in (before _total), longest
+// first so that celsius_per_second is not taken for seconds.
+var baseUnits = []string{"celsius_per_second", "coulombs", "joules", "volts", "amperes", "celsius", "watts", "seconds", "ratio"}
+
+// unitOf gives the unit a metric name ends in, for OpenMetrics' UNIT
+// line (the name must end in it), or "" for a dimensionless metric.
+func unitOf(name string) string {
+	base := strings.TrimSuffix(name, "_total")
+	for _, u := range baseUnits {
+		if strings.HasSuffix(base, "_"+u) {
+			return u
+		}
+	}
+	return ""
 }

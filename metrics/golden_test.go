@@ -97,6 +97,9 @@ func TestOpenMetrics(t *testing.T) {
 	body := rec.Body.String()
 	for _, want := range []string{
 		"# TYPE packwatch_trips counter\n",
+		"# UNIT packwatch_cell_voltage_volts volts\n",
+		"# UNIT packwatch_charge_coulombs coulombs\n",
+		"# UNIT packwatch_limit_margin_celsius_per_second celsius_per_second\n",
 		`packwatch_trips_total{limit="cell_low",pack="bench"} 1.0` + "\n",
 		`packwatch_cell_voltage_volts{cell="1",pack="bench"} 3.912` + "\n",
 	} {
