@@ -54,8 +54,10 @@ func (d *SLCANDecoder) parse(frame func(f can.Frame, ts uint16, hasTS bool)) {
 	l := d.line[:d.n]
 	switch l[0] {
 	case 't', 'T', 'r', 'R':
-	case 'z', 'Z', 'V', 'v', 'N', 'F':
-		// Replies to transmit, version, serial number and status commands.
+	case 'z', 'Z', 'V', 'v', 'N', 'F', 's', 'e':
+		// Replies to transmit, version, serial number and status commands,
+		// and the state (s) and error (e) lines that newer kernels' slcan
+		// driver accepts from adapters (from memory: not decoded, counted).
 		d.stats.Replies++
 		return
 	default:
