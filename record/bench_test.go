@@ -171,6 +171,7 @@ func BenchmarkScanRecording(b *testing.B) {
 	}
 	defer r.Close()
 	ctx := context.Background()
+	cpu0 := cpuTime()
 	b.ResetTimer()
 	start := time.Now()
 	var n int
@@ -191,7 +192,11 @@ func BenchmarkScanRecording(b *testing.B) {
 		}
 	}
 	elapsed := time.Since(start)
+	cpu := cpuTime() - cpu0
 	b.ReportMetric(float64(n)/elapsed.Seconds(), "frames/s")
+	if cpu > 0 {
+		b.ReportMetric(float64(cpu)/float64(n), "cpu-ns/frame")
+	}
 	if sum == 0 {
 		b.Fatal("nothing read")
 	}
@@ -250,4 +255,64 @@ func BenchmarkOpen(b *testing.B) {
 		r.Close()
 	}
 	b.ReportMetric(float64(st.Size())/1e6*float64(b.N)/b.Elapsed().Seconds(), "MB/s")
+}
+
+// BenchmarkRecordLive8k records at the pace of a saturated bus, 8,000
+// frames/s of wall time, written every 5 ms in batches (as a bus reader
+// delivers them) through the default (dropping) writer with its 250 ms
+// commits. One op is one second; run with -benchtime=3x. Metrics: CPU of the
+// whole process as % of one core, and the same for the pacing loop alone
+// (no writer) to subtract.
+func BenchmarkRecordLive8k(b *testing.B) {
+	for _, withWriter := range []bool{true, false} {
+		name := "writer"
+		if !withWriter {
+			name = "loop-only"
+		}
+		b.Run(name, func(b *testing.B) {
+			traffic := packTraffic(64000, 6)
+			var w *Writer
+			if withWriter {
+				var err error
+				if w, err = Create(filepath.Join(b.TempDir(), "live.db"), testMeta, Options{}); err != nil {
+					b.Fatal(err)
+				}
+			}
+			tick := time.NewTicker(5 * time.Millisecond)
+			defer tick.Stop()
+			cpu0 := cpuTime()
+			start := time.Now()
+			b.ResetTimer()
+			k, sum := 0, 0
+			for total := 8000 * b.N; k < total; {
+				<-tick.C
+				due := min(total, int(time.Since(start).Seconds()*8000))
+				for k < due {
+					i := k % len(traffic)
+					n := min(due-k, len(traffic)-i)
+					if w != nil {
+						w.Write(traffic[i : i+n])
+					} else {
+						sum += int(traffic[i].Frame.ID)
+					}
+					k += n
+				}
+			}
+			if w != nil {
+				if err := w.Close(); err != nil {
+					b.Fatal(err)
+				}
+				if d := w.Dropped(); d != 0 {
+					b.Fatalf("%d dropped", d)
+				}
+			}
+			cpu := cpuTime() - cpu0
+			elapsed := time.Since(start)
+			b.ReportMetric(float64(k)/elapsed.Seconds(), "frames/s")
+			if cpu > 0 {
+				b.ReportMetric(float64(cpu)/float64(elapsed)*100, "%core")
+			}
+			_ = sum
+		})
+	}
 }
