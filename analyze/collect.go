@@ -17,6 +17,7 @@ type Collector struct {
 	v       *decode.Values
 	s       *Session
 	dst     []*Trace // per slot: the trace it feeds, nil for none
+	flag    []bool   // per slot: a flag, kept only when it changes
 	started bool
 }
 
@@ -36,8 +37,10 @@ func NewCollector(m *decode.Map) *Collector {
 	c := &Collector{m: m, v: decode.NewValues(m), s: s}
 	slots := m.Slots()
 	c.dst = make([]*Trace, len(slots))
+	c.flag = make([]bool, len(slots))
 	for i, sl := range slots {
 		c.dst[i] = s.traceFor(sl.Bind)
+		c.flag[i] = sl.Bind.Bool()
 	}
 	return c
 }
@@ -101,7 +104,16 @@ func (c *Collector) Add(batch []bus.Message) {
 			if tr == nil || c.v.Flag[slot] != decode.FlagOK {
 				continue
 			}
-			tr.Add(t, c.v.V[slot])
+			v := c.v.V[slot]
+			if c.flag[slot] {
+				if v != 0 {
+					v = 1
+				}
+				if n := len(tr.V); n > 0 && tr.V[n-1] == v {
+					continue // a flag is kept only when it changes
+				}
+			}
+			tr.Add(t, v)
 		}
 	}
 }

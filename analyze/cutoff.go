@@ -9,18 +9,18 @@ import (
 // charge removed since full, keeping only readings taken at the run's
 // steady current (within 10 % of its median, and so 30 s before),
 // so that bursts and their recovery do not bend the curve.
-func ccCurve(s *Session, ch *Charge, r Run, tr *Trace, step float64, level float64) (q, v []float64) {
+func ccCurve(s *Session, ch *Charge, r Run, tr *Trace, step float64, level float64, moved []float64) (q, v []float64) {
 	i, j := s.Current.Window(r.From, r.To+1e-9)
 	if j-i < 2 {
 		return nil, nil
 	}
-	moved := make([]float64, j-i)
-	for k := i; k < j; k++ {
-		moved[k-i] = ch.Q[i] - ch.Q[k]
-	}
 	vt, vv := steadyReadings(s, tr, r.From, r.To, r.ccFrom, level, 30)
 	return ResampleByCharge(s.Current.T[i:j], moved, vt, vv, step)
 }
+
+// steadyMinGapS thins a fast channel: a steady reading this soon after the
+// last one kept adds nothing to a curve taken at a steady current.
+const steadyMinGapS = 0.05
 
 // steadyReadings returns the readings of tr in [from, to] taken at the
 // steady current level (within 10 % of it, and so settleS before); readings
@@ -31,6 +31,10 @@ func steadyReadings(s *Session, tr *Trace, from, to, settleFrom, level, settleS 
 	ci := cur.search(settleFrom) // next current reading to look at
 	lastOff := math.Inf(-1)      // time of the latest off-level current reading
 	tol := 0.1 * math.Abs(level)
+	now := cursor{tr: cur}
+	vt = make([]float64, 0, min(b-a, 1<<16))
+	vv = make([]float64, 0, min(b-a, 1<<16))
+	lastKept := math.Inf(-1)
 	for k := a; k < b; k++ {
 		t := tr.T[k]
 		for ci < cur.Len() && cur.T[ci] <= t {
@@ -40,10 +44,14 @@ func steadyReadings(s *Session, tr *Trace, from, to, settleFrom, level, settleS 
 			ci++
 		}
 		if t >= settleFrom {
-			if i1, _ := cur.At(t); math.Abs(i1-level) > tol || t-lastOff < settleS {
+			if i1, _ := now.at(t); math.Abs(i1-level) > tol || t-lastOff < settleS {
 				continue
 			}
 		}
+		if t-lastKept < steadyMinGapS && k != b-1 {
+			continue
+		}
+		lastKept = t
 		vt = append(vt, t)
 		vv = append(vv, tr.V[k])
 	}
@@ -53,7 +61,7 @@ func steadyReadings(s *Session, tr *Trace, from, to, settleFrom, level, settleS 
 // dischargeLevel is the median current of a run's discharge readings.
 func dischargeLevel(s *Session, r Run) float64 {
 	i, j := s.Current.Window(r.ccFrom, r.To+1e-9)
-	var x []float64
+	x := make([]float64, 0, j-i)
 	for _, v := range s.Current.V[i:j] {
 		if v < 0 {
 			x = append(x, v)
@@ -75,7 +83,12 @@ func kneeAndCutoff(s *Session, ch *Charge, r Run, opt Options, rep *Report) {
 	}
 	step := math.Max(r.Ah/1000, 1e-4)
 	cells := float64(max(s.Pack.Cells, 1))
-	pq, pv := ccCurve(s, ch, r, &s.PackV, step, level)
+	i0, j0 := s.Current.Window(r.From, r.To+1e-9)
+	moved := make([]float64, j0-i0)
+	for k := i0; k < j0; k++ {
+		moved[k-i0] = ch.Q[i0] - ch.Q[k]
+	}
+	pq, pv := ccCurve(s, ch, r, &s.PackV, step, level, moved)
 	pk := FindKnee(pq, pv, opt.KneeK, 0)
 	if pk.Found {
 		rep.KneeAh = Num(pk.Q)
@@ -90,7 +103,7 @@ func kneeAndCutoff(s *Session, ch *Charge, r Run, opt Options, rep *Report) {
 	// cells: the weakest reaches its knee first
 	weak, weakQ, weakV := 0, math.Inf(1), math.NaN()
 	for c := range s.Cells {
-		q, v := ccCurve(s, ch, r, &s.Cells[c], step, level)
+		q, v := ccCurve(s, ch, r, &s.Cells[c], step, level, moved)
 		k := FindKnee(q, v, opt.KneeK, 0)
 		rep.CellKnees = append(rep.CellKnees, k)
 		if k.Found && k.Q < weakQ {

@@ -235,7 +235,7 @@ func RunICA(s *Session, ch *Charge, r Run, opt ICAOptions, stepAh float64) (ICA,
 	for k := range vv {
 		vv[k] /= cells
 	}
-	pq, pv := chargePairs(s.Current.T[i:j], q, vt, vv)
+	pq, pv := chargePairs(s.Current.T[i:j], q, vt, vv, stepAh/pairsPerStep)
 	vc, d := BinDQDV(pq, pv, opt.BinV)
 	d = SavitzkyGolay(d, opt.SmoothPoints/2)
 	res.V, res.DQDV = nums(vc), nums(d)

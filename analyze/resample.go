@@ -17,7 +17,7 @@ func ResampleByCharge(chT, chQ, vT, vV []float64, step float64) (q, v []float64)
 	if len(chT) == 0 || len(vT) == 0 || step <= 0 {
 		return nil, nil
 	}
-	pq, pv := chargePairs(chT, chQ, vT, vV)
+	pq, pv := chargePairs(chT, chQ, vT, vV, step/pairsPerStep)
 	if len(pq) < 2 {
 		return nil, nil
 	}
@@ -42,17 +42,26 @@ func ResampleByCharge(chT, chQ, vT, vV []float64, step float64) (q, v []float64)
 	return q, v
 }
 
+// pairsPerStep: ResampleByCharge keeps at most this many readings per
+// charge step (a fast bus sends far more; the curve is interpolated
+// between neighbouring readings, so the others add nothing).
+const pairsPerStep = 50
+
 // chargePairs gives each voltage reading within the charge readings' span
 // the charge interpolated to its own time, skipping readings whose charge
-// falls below an earlier one.
-func chargePairs(chT, chQ, vT, vV []float64) (pq, pv []float64) {
+// falls below an earlier one, and readings less than minDq after the last
+// one kept (the last reading is always kept). With minDq = 0 every reading
+// counts.
+func chargePairs(chT, chQ, vT, vV []float64, minDq float64) (pq, pv []float64) {
 	if len(chT) == 0 {
 		return nil, nil
 	}
 	ch := cursor{tr: &Trace{T: chT, V: chQ}}
-	pq = make([]float64, 0, len(vT))
-	pv = make([]float64, 0, len(vT))
+	n := min(len(vT), 4096)
+	pq = make([]float64, 0, n)
+	pv = make([]float64, 0, n)
 	top := math.Inf(-1)
+	last := -1
 	for k, t := range vT {
 		if t < chT[0] || t > chT[len(chT)-1] {
 			continue
@@ -62,8 +71,18 @@ func chargePairs(chT, chQ, vT, vV []float64) (pq, pv []float64) {
 			continue
 		}
 		top = qq
+		if len(pq) > 0 && qq < pq[len(pq)-1]+minDq {
+			last = k
+			continue
+		}
 		pq = append(pq, qq)
 		pv = append(pv, vV[k])
+		last = -1
+	}
+	if last >= 0 { // the final reading, skipped as too close, still ends the curve
+		qq, _ := ch.at(vT[last])
+		pq = append(pq, qq)
+		pv = append(pv, vV[last])
 	}
 	return pq, pv
 }

@@ -312,12 +312,26 @@ func outliers(cells []Resist, inter Num) []string {
 	return flags
 }
 
-// median of a slice (sorted copy).
+// medianSample bounds the work of median: longer slices are sampled at a
+// regular stride (the level of a current or a slope, not an exact order
+// statistic, is what is needed).
+const medianSample = 20001
+
+// median of a slice (a sorted copy, or of a regular sample of a long one).
 func median(x []float64) float64 {
 	if len(x) == 0 {
 		return math.NaN()
 	}
-	c := append([]float64(nil), x...)
+	var c []float64
+	if len(x) > medianSample {
+		stride := (len(x) + medianSample - 1) / medianSample
+		c = make([]float64, 0, len(x)/stride+1)
+		for i := 0; i < len(x); i += stride {
+			c = append(c, x[i])
+		}
+	} else {
+		c = append([]float64(nil), x...)
+	}
 	sortFloats(c)
 	m := len(c) / 2
 	if len(c)%2 == 1 {

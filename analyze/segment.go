@@ -175,9 +175,7 @@ func fillStats(s *Session, ch *Charge, seg *Segment) {
 // current then falls below half the CC level (a real taper, not noise).
 func splitCV(s *Session, ch *Charge, seg Segment, opt SegmentOptions) []Segment {
 	tr := &s.Current
-	vals := append([]float64(nil), tr.V[seg.i:seg.j+1]...)
-	sort.Float64s(vals)
-	icc := vals[int(0.9*float64(len(vals)-1))]
+	icc := percentile(tr.V[seg.i:seg.j+1], 0.9)
 	last := -1
 	for k := seg.j; k >= seg.i; k-- {
 		if tr.V[k] >= opt.TaperFrac*icc {
@@ -200,6 +198,17 @@ func splitCV(s *Session, ch *Charge, seg Segment, opt SegmentOptions) []Segment 
 	fillStats(s, ch, &cc)
 	fillStats(s, ch, &cv)
 	return []Segment{cc, cv}
+}
+
+// percentile is the p-quantile of x (of a regular sample when x is long).
+func percentile(x []float64, p float64) float64 {
+	stride := max(1, (len(x)+medianSample-1)/medianSample)
+	c := make([]float64, 0, len(x)/stride+1)
+	for i := 0; i < len(x); i += stride {
+		c = append(c, x[i])
+	}
+	sort.Float64s(c)
+	return c[int(p*float64(len(c)-1))]
 }
 
 // FullAt is the data time (s) the pack counts as full before discharge

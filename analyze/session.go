@@ -25,7 +25,8 @@ type Session struct {
 	SOC Trace
 	// Link is link.voltage (the load side of the main contactor), V.
 	Link Trace
-	// Main, MainCommand and Precharge are the contactor flags (1 closed).
+	// Main, MainCommand and Precharge are the contactor flags (1 closed),
+	// kept only when they change: each reading is a transition.
 	Main, MainCommand, Precharge Trace
 	// Gaps are the data times (s) of breaks in the data: nothing is
 	// integrated across them.
