@@ -79,7 +79,10 @@ func (c *collector) pack(e *emitter, p *pack.PackSnapshot) {
 	e.gaugeP(d.power, p.Power, id)
 
 	// State of charge and counted charge.
-	if p.SOC.Pct != nil {
+	// A counted state of charge stands still while the current is stale:
+	// dropped with it rather than frozen. The BMS's own is nil when stale.
+	counted := p.SOC.Source == "counted" || p.SOC.Source == "uncertain"
+	if p.SOC.Pct != nil && (p.Current != nil || !counted) {
 		e.gauge(d.socRatio, float64(*p.SOC.Pct)/100, id)
 	}
 	e.stateSet(d.socBasis, socBases, p.SOC.Source, id)

@@ -77,7 +77,7 @@ func newDescs() *descs {
 		current:        d("pack_current_amperes", "Pack current, positive = charging. Absent while stale.", pk...),
 		voltage:        d("pack_voltage_volts", "Pack voltage as reported, else the sum of the cells when every cell is fresh.", pk...),
 		power:          d("pack_power_watts", "Pack power, positive = charging.", pk...),
-		socRatio:       d("state_of_charge_ratio", "State of charge, 0 to 1.", pk...),
+		socRatio:       d("state_of_charge_ratio", "State of charge, 0 to 1. Absent while the BMS's value is stale, or while the current is stale when it is counted.", pk...),
 		socBasis:       d("state_of_charge_basis", "1 for where the state of charge comes from (bms, counted, uncertain, none), 0 for the others.", lPack, "basis"),
 		charge:         d("charge_coulombs_total", "Charge counted into (direction=in) and out of (out) the pack since the counter started; 1 Ah = 3600 C.", lPack, "direction"),
 		energy:         d("energy_joules_total", "Energy counted into (direction=in) and out of (out) the pack since the counter started; 1 Wh = 3600 J.", lPack, "direction"),

@@ -148,6 +148,10 @@ func TestExpositionMatchesState(t *testing.T) {
 		}
 
 		soc := obj(p["soc"])
+		_, hasCurrent := numOf(p["current_a"])
+		if src := str(soc["source"]); !hasCurrent && (src == "counted" || src == "uncertain") {
+			soc["pct"] = nil // counted without a current: not exposed
+		}
 		if pct, has := numOf(soc["pct"]); has {
 			v, ok := x.find(t, "packwatch_state_of_charge_ratio", "pack", id)
 			if !ok || !near(v, pct/100, 1e-12) || v < 0 || v > 1 {
@@ -357,4 +361,42 @@ func TestBeforeAnySnapshot(t *testing.T) {
 	if len(x) != 1 || x["packwatch_info"] == nil {
 		t.Errorf("families %s, want packwatch_info alone", x.names())
 	}
+}
+
+// A source that goes silent: every value it fed leaves /metrics, while its
+// counters stay and its age grows; the other pack is untouched.
+func TestSilentSourceDropsValues(t *testing.T) {
+	h := NewHandler(Options{})
+	r := newRig(t, h.Observe)
+	r.run(5*time.Second, nil)
+	before := scrape(t, h, promUA)
+	r.b.silent = true
+	// 3 s: past 3 × every interval of B's frames (cells 400 ms, current
+	// 50 ms, temperatures 500 ms).
+	r.run(3*time.Second, nil)
+	x := scrape(t, h, promUA)
+	for _, name := range []string{
+		"packwatch_cell_voltage_volts", "packwatch_temperature_celsius", "packwatch_pack_current_amperes",
+		"packwatch_pack_voltage_volts", "packwatch_pack_power_watts", "packwatch_state_of_charge_ratio",
+		"packwatch_limit_margin_volts", "packwatch_limit_margin_celsius", "packwatch_limit_margin_amperes",
+	} {
+		if n := before.series(name, "pack", packB); n == 0 {
+			t.Errorf("before: no %s for B", name)
+		}
+		if n := x.series(name, "pack", packB); n != 0 {
+			t.Errorf("B silent: %d %s series, want none", n, name)
+		}
+		if n, m := x.series(name, "pack", packA), before.series(name, "pack", packA); n != m {
+			t.Errorf("A: %d %s series, %d before", n, name, m)
+		}
+	}
+	msgs, _ := before.find(t, "packwatch_source_messages_total", "pack", packB, "source", "bms")
+	if v, ok := x.find(t, "packwatch_source_messages_total", "pack", packB, "source", "bms"); !ok || v != msgs || v == 0 {
+		t.Errorf("B messages %v (%v), want the %v from before", v, ok, msgs)
+	}
+	// Last message at 4.95 s, data time now 7.95 s (A keeps sending).
+	if v, ok := x.find(t, "packwatch_source_last_message_age_seconds", "pack", packB, "source", "bms"); !ok || !near(v, 3.0, 1e-9) {
+		t.Errorf("B source age %v (%v), want 3 s", v, ok)
+	}
+	checkStateSet(t, x, "packwatch_pack_state", "nodata", "pack", packB)
 }
