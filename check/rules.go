@@ -107,13 +107,14 @@ func ruleReporting(w Window) RuleResult {
 			if i >= nc {
 				break
 			}
-			key := "cell " + strconv.Itoa(c.N)
 			switch {
 			case fresh(c.State):
 				cellFresh[i], anyFresh = true, true
 			case c.State == "fault":
+				key := "cell " + strconv.Itoa(c.N)
 				note(key, key+" reading implausible (sensor fault) "+at(&w, sm.T))
 			case cellFresh[i]:
+				key := "cell " + strconv.Itoa(c.N)
 				note(key, key+" went "+c.State+" "+at(&w, sm.T))
 			}
 		}
@@ -121,13 +122,14 @@ func ruleReporting(w Window) RuleResult {
 			if i >= nt {
 				break
 			}
-			key := "sensor " + strconv.Itoa(t.N)
 			switch {
 			case fresh(t.State):
 				tempFresh[i], anyFresh = true, true
 			case t.State == "fault":
+				key := "sensor " + strconv.Itoa(t.N)
 				note(key, key+" reading implausible (sensor fault) "+at(&w, sm.T))
 			case tempFresh[i]:
+				key := "sensor " + strconv.Itoa(t.N)
 				note(key, key+" went "+t.State+" "+at(&w, sm.T))
 			}
 		}
