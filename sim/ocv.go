@@ -110,13 +110,15 @@ func (t *OCVTable) SOC(v float64) float64 {
 // memory of published curves (no datasheet was consulted; values from memory):
 // an NMC/graphite cell is full near 4.2 V and sits near 3.6–3.7 V at mid
 // charge, an LFP/graphite cell has a long plateau near 3.3 V (facts of the
-// trade, no source). They are for the demo and for test data, never for
-// judging a real pack.
+// trade, no source). They hold the same points as the rest-voltage table
+// packwatch uses to estimate a starting state of charge (pack/rest.go), so
+// that the demo's counted charge starts where the simulated pack is. For the
+// demo and for test data, never for judging a real pack.
 var (
-	nmcZ = []float64{0, 0.02, 0.05, 0.10, 0.15, 0.20, 0.30, 0.40, 0.50, 0.60, 0.70, 0.80, 0.90, 0.95, 1}
-	nmcV = []float64{3.00, 3.30, 3.43, 3.50, 3.55, 3.58, 3.62, 3.66, 3.70, 3.77, 3.85, 3.93, 4.03, 4.09, 4.18}
-	lfpZ = []float64{0, 0.02, 0.05, 0.10, 0.20, 0.30, 0.40, 0.50, 0.60, 0.70, 0.80, 0.90, 0.95, 0.98, 1}
-	lfpV = []float64{2.50, 2.90, 3.10, 3.20, 3.25, 3.28, 3.29, 3.30, 3.31, 3.32, 3.33, 3.34, 3.36, 3.40, 3.60}
+	nmcZ = []float64{0, 0.05, 0.10, 0.20, 0.30, 0.40, 0.50, 0.60, 0.70, 0.80, 0.90, 1}
+	nmcV = []float64{3.00, 3.40, 3.50, 3.59, 3.63, 3.66, 3.70, 3.77, 3.85, 3.94, 4.04, 4.18}
+	lfpZ = []float64{0, 0.05, 0.10, 0.20, 0.30, 0.40, 0.50, 0.60, 0.70, 0.80, 0.90, 0.95, 1}
+	lfpV = []float64{2.80, 3.10, 3.20, 3.25, 3.28, 3.29, 3.30, 3.31, 3.32, 3.33, 3.34, 3.36, 3.45}
 )
 
 // ChemistryOCV returns the built-in rest-voltage table for a profile's

@@ -290,8 +290,8 @@ func BuoyWinchScenario() *Scenario {
 
 // GenericScenario builds a story for any profile from its [pack] and
 // [limits]: a 10-minute rest, a charge at C/5 (at most 80 % of the charge
-// current limit) to 0.1 V below cell_high_v (at most the chemistry's usual
-// full voltage) with a taper to C/50, a rest, then a discharge of C/10 with
+// current limit) to 30 mV below the chemistry's full rest voltage (at most
+// 0.1 V below cell_high_v) with a taper to C/50, a rest, then a discharge of C/10 with
 // bursts of 1C (at most 60 % of the discharge limit) for 20 s every 3
 // minutes until the lowest cell is within the warning margin of cell_low_v;
 // and again.
@@ -308,9 +308,10 @@ func GenericScenario(p *config.Profile) *Scenario {
 	if l := p.Limits.DischargeCurrent; l != nil && *l > 0 {
 		burst = math.Min(burst, 0.6**l)
 	}
-	full := 4.15 // nmc, nca, lco
-	if p.Pack.Chemistry == "lfp" {
-		full = 3.55
+	// the charger stops 30 mV below the rest voltage of a full cell
+	full := 4.15
+	if tab, err := ChemistryOCV(p.Pack.Chemistry); err == nil {
+		full = math.Round((tab.At(1)-0.03)*1000) / 1000
 	}
 	cv := full
 	if p.Limits.CellHighV > 0 {

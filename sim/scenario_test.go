@@ -1,6 +1,7 @@
 package sim
 
 import (
+	"math"
 	"os"
 	"strings"
 	"testing"
@@ -82,5 +83,30 @@ func TestParseScenarioErrors(t *testing.T) {
 	sc.Cells[0].N = 13
 	if _, err := New(dm, Options{Scenario: sc, Start: t0}); err == nil {
 		t.Error("cell 13 of a 12-cell pack accepted")
+	}
+}
+
+// The generic story of an LFP pack charges with a taper too: its CV target
+// lies below the full rest voltage of the chemistry.
+func TestGenericLFPTapers(t *testing.T) {
+	dm := loadMap(t, buoyProfile)
+	p := *dm.Profile()
+	p.Pack.Chemistry = "lfp"
+	sc := GenericScenario(&p)
+	if cv := sc.Steps[1].CellV; math.Abs(cv-3.42) > 1e-9 {
+		t.Fatalf("LFP CV %g V, want 3.42", cv)
+	}
+	m, err := buildModel(&p, sc, nil, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	st := newStory(sc, m)
+	tapered := false
+	for n := 0; n < 100000 && st.step <= 1; n++ {
+		st.tick(1)
+		tapered = tapered || st.cv
+	}
+	if !tapered || st.step != 2 {
+		t.Errorf("LFP charge: taper %v, now in step %d", tapered, st.step)
 	}
 }
