@@ -127,21 +127,24 @@ func (c *collector) pack(e *emitter, p *pack.PackSnapshot) {
 		}
 		e.counter(d.faults, float64(pt.Faults), id)
 	}
-	var activeTrip, activeFault, unacked float64
+	active := map[string]float64{"trip": 0, "fault": 0}
+	var unacked float64
 	for _, a := range p.Alarms {
-		if a.Active {
-			if a.Level == "fault" {
-				activeFault++
-			} else {
-				activeTrip++
-			}
+		if a.Active && a.Level != "" {
+			active[a.Level]++
 		}
 		if !a.Acked {
 			unacked++
 		}
 	}
-	e.gauge(d.alarmsActive, activeTrip, id, "trip")
-	e.gauge(d.alarmsActive, activeFault, id, "fault")
+	levels := make([]string, 0, len(active))
+	for l := range active {
+		levels = append(levels, l)
+	}
+	sort.Strings(levels)
+	for _, l := range levels {
+		e.gauge(d.alarmsActive, active[l], id, l)
+	}
 	e.gauge(d.alarmsUnacked, unacked, id)
 	e.counter(d.decodeFaults, float64(p.Decode.Faults), id)
 }

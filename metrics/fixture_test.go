@@ -61,15 +61,14 @@ func newTwoPacks(t testing.TB) *pack.Engine {
 // big-endian at 2–3, contactor byte 5 bit 0, state byte 6; 0x4E0 three
 // temperatures, one byte each, raw − 40 °C, 0xFF meaning no reading.
 type scene struct {
-	src      uint16 // engine index of the pack's CAN source
-	cells    [12]float64
-	amps     float64
-	temps    [3]float64
-	tempRaw  [3]int // ≥ 0 overrides the raw byte
-	noTemps  bool   // the temperature frame is not sent
-	noPower  bool   // the current and voltage frame is not sent
-	silent   bool   // nothing is sent
-	lastSent int64
+	src     uint16 // engine index of the pack's CAN source
+	cells   [12]float64
+	amps    float64
+	temps   [3]float64
+	tempRaw [3]int // ≥ 0 overrides the raw byte
+	noTemps bool   // the temperature frame is not sent
+	noPower bool   // the current and voltage frame is not sent
+	silent  bool   // nothing is sent
 }
 
 func newScene(src uint16) *scene {

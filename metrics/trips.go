@@ -46,9 +46,10 @@ func (t *trips) count(s *pack.Snapshot) {
 			if a.ID <= pt.maxID {
 				continue
 			}
-			if a.Level == "fault" {
+			switch a.Level {
+			case "fault":
 				pt.Faults++
-			} else {
+			case "trip":
 				pt.ByLim[a.Limit]++
 			}
 			maxID = max(maxID, a.ID)

@@ -70,7 +70,6 @@ func TestTripCounters(t *testing.T) {
 
 // A new engine numbers its alarms from 1 again; counting goes on.
 func TestTripsAcrossEngineRestart(t *testing.T) {
-	tr := newTrips()
 	snap := func(seq uint64, ids ...uint64) *pack.Snapshot {
 		p := pack.PackSnapshot{ID: "p"}
 		for _, id := range ids {
@@ -79,7 +78,6 @@ func TestTripsAcrossEngineRestart(t *testing.T) {
 		return &pack.Snapshot{Seq: seq, Packs: []pack.PackSnapshot{p}}
 	}
 	h := NewHandler(Options{})
-	h.trips = tr
 	h.Observe(snap(10, 1, 2))
 	h.Observe(snap(11, 1, 2)) // the same alarms again: not counted twice
 	h.Observe(snap(1, 1))     // a new engine: its alarm 1 is new
