@@ -163,6 +163,13 @@ func TestBrowserEndToEnd(t *testing.T) {
 	}
 	eng.mu.Unlock()
 
+	// Pre-charge: the main contactor closing with the load side below 90 %
+	// of pack voltage raises the warning (common practice, no source).
+	eng.setPrecharge(0.6, false)
+	waitJS(t, ctx, "pre-charge at 60 %", `document.getElementById('pre-pct').textContent.startsWith('60') && document.getElementById('pre-warn').hidden`, 30*time.Second)
+	eng.setPrecharge(0.6, true)
+	waitJS(t, ctx, "early-close warning", `(() => { const w = document.getElementById('pre-warn'); return !w.hidden && w.textContent.includes('60') && w.textContent.includes('below 90'); })()`, 30*time.Second)
+
 	// The bus view: opened, it subscribes and lists every ID, unknown ones marked.
 	if err := chromedp.Do(ctx, chromedp.Click(chromedp.CSS(`#bus summary`))); err != nil {
 		t.Fatalf("open bus view: %v", err)

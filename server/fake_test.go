@@ -28,6 +28,16 @@ type fakeEngine struct {
 	acked  map[uint64]bool
 	last   *pack.Snapshot
 	calls  int
+	// preRatio, when > 0, holds the load side at this share of pack voltage
+	// and mainOn the main contactor, instead of the built-in ramp.
+	preRatio float64
+	mainOn   bool
+}
+
+func (f *fakeEngine) setPrecharge(ratio float64, mainOn bool) {
+	f.mu.Lock()
+	f.preRatio, f.mainOn = ratio, mainOn
+	f.mu.Unlock()
 }
 
 func newFakeEngine(cells, temps int) *fakeEngine {
@@ -131,6 +141,12 @@ func (f *fakeEngine) Snapshot(now time.Time) *pack.Snapshot {
 	main := 0.0
 	if k > 30 {
 		main = 1
+	}
+	if f.preRatio > 0 {
+		link, main = sum*f.preRatio, 0
+		if f.mainOn {
+			main = 1
+		}
 	}
 	p.Values = []pack.ValueSnap{
 		{Bind: "link.voltage", Value: np(link), Unit: "V", Age: np(0.1), State: "ok"},
