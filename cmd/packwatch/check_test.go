@@ -4,11 +4,15 @@ import (
 	"bytes"
 	"context"
 	"encoding/json"
+	"fmt"
+	"net"
 	"os"
 	"path/filepath"
 	"strings"
 	"testing"
 	"time"
+
+	"go.einride.tech/can"
 
 	"packwatch/bus"
 	"packwatch/check"
@@ -216,3 +220,148 @@ type recordSink struct{ w *record.Writer }
 
 func (r recordSink) Deliver(b []bus.Message) { r.w.Write(b) }
 func (r recordSink) Status(bus.Status)       {}
+
+// liveProfile is an invented 4-cell pack read from a tcp-can gateway at addr.
+const liveProfile = `
+[pack]
+name = "Bench pod"
+cells = 4
+temp_sensors = 1
+capacity_ah = 20
+serial = "BENCH-1"
+
+[limits]
+cell_high_v = 4.20
+cell_low_v = 3.00
+temp_high_c = 55
+temp_low_c = -10
+
+[check]
+min_soc_pct = 30
+
+[[source]]
+name = "gw"
+kind = "tcp-can"
+device = "%s"
+
+[[frame]]
+id = 0x310
+mux = { byte = 0 }
+period_ms = 50
+  [[frame.field]]
+  mux = "0..1"
+  bind = "cell[{2*mux+1}..{2*mux+2}].voltage"
+  byte = 1
+  size = 2
+  scale = 0.001
+
+[[frame]]
+id = 0x320
+period_ms = 100
+  [[frame.field]]
+  bind = "pack.current"
+  byte = 0
+  size = 2
+  signed = true
+  scale = 0.1
+  [[frame.field]]
+  bind = "pack.soc"
+  byte = 2
+  size = 1
+  scale = 0.5
+  [[frame.field]]
+  bind = "fault.any"
+  byte = 3
+  bit = 0
+
+[[frame]]
+id = 0x330
+period_ms = 500
+  [[frame.field]]
+  bind = "temp[1]"
+  byte = 0
+  offset = -40
+`
+
+// TestCheckLive watches a live tcp-can source fed in real time by a
+// simulated gateway: a go (exit 0) marked live, then a gateway that sends
+// nothing: could not check (exit 2).
+func TestCheckLive(t *testing.T) {
+	dir := t.TempDir()
+	for _, c := range []struct {
+		name   string
+		silent bool
+		code   int
+	}{{"live go", false, exitOK}, {"silent gateway", true, exitBad}} {
+		t.Run(c.name, func(t *testing.T) {
+			ln, err := net.Listen("tcp", "127.0.0.1:0")
+			if err != nil {
+				t.Fatal(err)
+			}
+			path := filepath.Join(dir, c.name+".toml")
+			os.WriteFile(path, []byte(fmt.Sprintf(liveProfile, ln.Addr().String())), 0o644)
+			p, err := config.Load(path)
+			if err != nil {
+				t.Fatal(err)
+			}
+			m, err := decode.Compile(p)
+			if err != nil {
+				t.Fatal(err)
+			}
+			start := time.Now()
+			s, err := sim.New(m, sim.Options{Speed: sim.SpeedMax, Start: start, Seed: 3, For: time.Minute})
+			if err != nil {
+				t.Fatal(err)
+			}
+			var gen checkSliceSink
+			if err := s.Run(context.Background(), &gen); err != nil {
+				t.Fatal(err)
+			}
+			ctx, cancel := context.WithCancel(context.Background())
+			done := make(chan struct{})
+			go func() { // the gateway: sends the simulated frames at their pace
+				defer close(done)
+				conn, err := ln.Accept()
+				if err != nil {
+					return
+				}
+				defer conn.Close()
+				if c.silent {
+					<-ctx.Done()
+					return
+				}
+				fw := bus.NewFrameWriter(conn)
+				tick := time.NewTicker(20 * time.Millisecond)
+				defer tick.Stop()
+				t0, i := time.Now(), 0
+				for {
+					select {
+					case <-ctx.Done():
+						return
+					case <-tick.C:
+					}
+					due := start.UnixNano() + int64(time.Since(t0))
+					var fs []can.Frame
+					for ; i < len(gen.msgs) && gen.msgs[i].T <= due; i++ {
+						fs = append(fs, gen.msgs[i].Frame)
+					}
+					if fw.WriteFrames(fs) != nil {
+						return
+					}
+				}
+			}()
+			code, out, errOut := runCheckCLI(t, filepath.Join(dir, "checks.db"), "--profile", path, "--for", "3s", "--operator", "bench")
+			cancel()
+			ln.Close()
+			<-done
+			if code != c.code || !strings.Contains(out, "live sources gw (live)") || strings.Contains(out, "NOT LIVE") {
+				t.Errorf("exit %d, want %d\n%s%s", code, c.code, out, errOut)
+			}
+		})
+	}
+}
+
+type checkSliceSink struct{ msgs []bus.Message }
+
+func (s *checkSliceSink) Deliver(b []bus.Message) { s.msgs = append(s.msgs, b...) }
+func (s *checkSliceSink) Status(bus.Status)       {}
