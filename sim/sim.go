@@ -526,6 +526,7 @@ func (s *Sim) Run(ctx context.Context, sink bus.Sink) error {
 	s.mu.Lock()
 	seenPauses := s.pauses
 	s.mu.Unlock()
+	wasPaused := false
 	for {
 		s.mu.Lock()
 		paused, through, pauses := s.paused, s.through, s.pauses
@@ -534,6 +535,7 @@ func (s *Sim) Run(ctx context.Context, sink bus.Sink) error {
 			return nil
 		}
 		if paused {
+			wasPaused = true
 			select {
 			case <-ctx.Done():
 				return nil
@@ -543,10 +545,10 @@ func (s *Sim) Run(ctx context.Context, sink bus.Sink) error {
 			}
 			continue
 		}
-		if pauses != seenPauses {
+		if wasPaused || pauses != seenPauses {
 			// paused since the anchor (however briefly): the wall time
 			// until now does not count
-			seenPauses = pauses
+			wasPaused, seenPauses = false, pauses
 			wallAnchor, simAnchor = now(), through
 		}
 		if math.IsInf(s.speed, 1) { // as fast as it can

@@ -109,7 +109,10 @@ func TestRunDecodesModel(t *testing.T) {
 // Pause, force a cell past its limit, advance simulated time by hand:
 // what a browser test does to hold the page still.
 func TestPauseForceAdvance(t *testing.T) {
-	s, dm := newBuoySim(t, Options{Speed: 1})
+	var wall atomic.Int64
+	ticks := make(chan time.Time)
+	s, dm := newBuoySim(t, Options{Speed: 1, Ticks: ticks,
+		Now: func() time.Time { return t0.Add(time.Duration(wall.Load())) }})
 	sink := newDecodeSink(dm)
 	ctx, cancel := context.WithCancel(context.Background())
 	done := make(chan error, 1)
@@ -158,8 +161,15 @@ func TestPauseForceAdvance(t *testing.T) {
 	if v, _ := sink.value(t, "cell[5].voltage"); v > 4 {
 		t.Errorf("released cell 5 still reads %g", v)
 	}
+	n = sink.count()
 	s.Resume()
-	waitFor(t, func() bool { return sink.count() > n+50 })
+	ticks <- time.Time{} // taken after Run re-anchors
+	wall.Add(int64(2 * time.Second))
+	ticks <- time.Time{}
+	ticks <- time.Time{} // the one before has been served
+	if got := sink.count() - n; got < 80 || got > 96 {
+		t.Errorf("%d messages in 2 s after Resume at speed 1, want about 88", got)
+	}
 }
 
 func (d *decodeSink) count() int {
