@@ -1,6 +1,7 @@
 package bus
 
 import (
+	"encoding/binary"
 	"testing"
 
 	"go.einride.tech/can"
@@ -80,4 +81,27 @@ func BenchmarkLineSplitter(b *testing.B) {
 		}
 	}
 	b.ReportMetric(float64(n)/b.Elapsed().Seconds(), "lines/s")
+}
+
+// The 16-byte frame path of socketcan and tcp-can: 4 KiB reads into messages.
+func BenchmarkFrame16Decode(b *testing.B) {
+	var stream []byte
+	for i := 0; i < 4096; i++ {
+		f := can.Frame{ID: 0x4C0 + uint32(i%8), Length: 8}
+		f.Data[0] = byte(i)
+		stream = AppendFrame16(stream, f, binary.LittleEndian)
+	}
+	d := frame16Decoder{order: binary.LittleEndian}
+	out := make([]Message, 0, 256)
+	b.SetBytes(int64(len(stream)))
+	b.ReportAllocs()
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		for p := stream; len(p) > 0; {
+			n := min(4096, len(p))
+			out = d.feed(p[:n], 1, 0, out[:0])
+			p = p[n:]
+		}
+	}
+	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(4096*b.N), "ns/frame")
 }
