@@ -245,14 +245,9 @@ func appendUvarint(b []byte, v uint64) []byte {
 
 // slotInfo is a decoded dictionary entry.
 type slotInfo struct {
-	src  uint16
-	kind bus.Kind
+	tmpl bus.Message // Src, Kind and the frame's ID, length and flags
 	text bool
-	ext  bool
-	rtr  bool
-	len  uint8
 	pl   int
-	id   uint32
 	prev uint64
 }
 
@@ -299,19 +294,21 @@ func (d *blockDecoder) decode(b []byte, dst []bus.Message) ([]bus.Message, error
 		if !ok {
 			return dst, corrupt("truncated dictionary")
 		}
-		s := slotInfo{
-			id:   uint32(k),
-			len:  uint8(k >> 32),
-			ext:  k&(1<<40) != 0,
-			rtr:  k&(1<<41) != 0,
-			kind: bus.Kind(k >> 42 & 63),
-			src:  uint16(k >> 48),
+		var s slotInfo
+		s.tmpl.Src = uint16(k >> 48)
+		s.tmpl.Kind = bus.Kind(k >> 42 & 63)
+		s.text = isText(s.tmpl.Kind)
+		if s.text {
+			if k&(1<<42-1) != 0 {
+				return dst, corrupt("text key with frame fields")
+			}
+		} else {
+			s.tmpl.Frame.ID = uint32(k)
+			s.tmpl.Frame.Length = uint8(k >> 32)
+			s.tmpl.Frame.IsExtended = k&(1<<40) != 0
+			s.tmpl.Frame.IsRemote = k&(1<<41) != 0
+			s.pl = payloadLen(s.tmpl.Frame.Length)
 		}
-		s.text = isText(s.kind)
-		if s.text && k&(1<<42-1) != 0 {
-			return dst, corrupt("text key with frame fields")
-		}
-		s.pl = payloadLen(s.len)
 		d.slots = append(d.slots, s)
 	}
 	// Every message takes at least two bytes: a forged count cannot make us
@@ -350,7 +347,8 @@ func (d *blockDecoder) decode(b []byte, dst []bus.Message) ([]bus.Message, error
 		}
 		s := &d.slots[si]
 		m := &out[i]
-		*m = bus.Message{T: t * 1000, Src: s.src, Kind: s.kind}
+		*m = s.tmpl
+		m.T = t * 1000
 		if s.text {
 			var l uint64
 			l, p, ok = uvarintAt(body, p)
@@ -361,10 +359,6 @@ func (d *blockDecoder) decode(b []byte, dst []bus.Message) ([]bus.Message, error
 			p += int(l)
 			continue
 		}
-		m.Frame.ID = s.id
-		m.Frame.Length = s.len
-		m.Frame.IsExtended = s.ext
-		m.Frame.IsRemote = s.rtr
 		if s.pl == 0 {
 			continue
 		}

@@ -1,8 +1,8 @@
 package record
 
 import (
-	"database/sql"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"strings"
 	"time"
@@ -46,7 +46,7 @@ func (w *Writer) run() {
 		work.profiles, w.profiles = w.profiles, work.profiles[:0]
 		work.stats, w.stats = w.stats, work.stats[:0]
 		if o := w.over; o.blocks > 0 || o.otherItems > 0 {
-			work.events = append(work.events, overrunEvent(o))
+			work.events = append(work.events, overrunEvent(o, w.lastDataT))
 			w.over = overrun{}
 		}
 		stopped := w.stopped
@@ -102,24 +102,15 @@ func (w *Writer) stop(err error, work *batchWork) {
 // isFull reports SQLITE_FULL (13), from the disk or from max_page_count.
 func isFull(err error) bool {
 	var c interface{ Code() int }
-	for e := err; e != nil; {
-		if x, ok := e.(interface{ Code() int }); ok {
-			c = x
-			break
-		}
-		u, ok := e.(interface{ Unwrap() error })
-		if !ok {
-			break
-		}
-		e = u.Unwrap()
-	}
-	if c != nil {
+	if errors.As(err, &c) {
 		return c.Code()&0xff == 13
 	}
 	return strings.Contains(err.Error(), "full")
 }
 
-func overrunEvent(o overrun) Event {
+// overrunEvent describes o; at is the data time to give it when no block
+// was dropped (only events or stat rows).
+func overrunEvent(o overrun, at int64) Event {
 	text := fmt.Sprintf("recording queue full: dropped %d messages in %d blocks", o.msgs, o.blocks)
 	if o.otherItems > 0 {
 		text += fmt.Sprintf(", %d events, profiles or stat rows", o.otherItems)
@@ -127,7 +118,7 @@ func overrunEvent(o overrun) Event {
 	j, _ := json.Marshal(map[string]any{"messages": o.msgs, "blocks": o.blocks, "from": o.from, "to": o.to, "items": o.otherItems})
 	t := o.from
 	if o.blocks == 0 {
-		t = 0
+		t = at
 	}
 	return Event{T: t, Kind: EventOverrun, Source: NoSource, Text: text, JSON: string(j)}
 }
@@ -198,5 +189,3 @@ func (w *Writer) commit(work *batchWork) error {
 	w.lastT.Store(lastT)
 	return nil
 }
-
-var _ = sql.ErrNoRows

@@ -310,6 +310,10 @@ func (r *Reader) Count() (int64, error) {
 	return n.Int64, nil
 }
 
+// scanQuery selects the blocks that may hold messages in [from, to) (the
+// arguments are to, from), in the order of their first times.
+const scanQuery = "SELECT id, data FROM blocks WHERE t0 < ? AND t1 >= ? ORDER BY t0, t1, id"
+
 // Scan calls fn with the recorded messages whose data time t is in
 // [from, to), in batches of up to one block, in the order of the blocks' first
 // times (time order for sources on one clock), messages within a block in
@@ -317,7 +321,7 @@ func (r *Reader) Count() (int64, error) {
 // reused); an error from fn stops the scan and is returned as is. A damaged
 // block stops the scan with an error wrapping ErrCorrupt.
 func (r *Reader) Scan(ctx context.Context, from, to int64, fn func(batch []bus.Message) error) error {
-	rows, err := r.db.QueryContext(ctx, "SELECT id, data FROM blocks WHERE t0 < ? AND t1 >= ? ORDER BY t0, id", to, from)
+	rows, err := r.db.QueryContext(ctx, scanQuery, to, from)
 	if err != nil {
 		return fmt.Errorf("scan %s: %w", r.path, err)
 	}

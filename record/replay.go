@@ -185,7 +185,7 @@ func (p *Replay) SeekTo(t int64) error {
 func (p *Replay) Position() int64 {
 	p.mu.Lock()
 	defer p.mu.Unlock()
-	if p.speed == 0 {
+	if p.speed == 0 || p.wallAnchor.IsZero() { // full speed, or not started
 		return p.pos
 	}
 	t := p.dataNowLocked(p.clock.Now())

@@ -66,7 +66,7 @@ CREATE TABLE blocks (
   n    INTEGER NOT NULL,
   data BLOB NOT NULL
 );
-CREATE INDEX blocks_t0 ON blocks (t0);
+CREATE INDEX blocks_t0 ON blocks (t0, t1);
 CREATE INDEX blocks_t1 ON blocks (t1);
 CREATE TABLE events (
   id     INTEGER PRIMARY KEY,

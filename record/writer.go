@@ -95,6 +95,9 @@ type Writer struct {
 	err      error
 	dropped  uint64
 	invalid  uint64
+	// lastDataT is the data time of the last message written (for events
+	// that have no time of their own).
+	lastDataT int64
 
 	committed atomic.Uint64
 	lastT     atomic.Int64
@@ -259,9 +262,12 @@ func (w *Writer) startSession(meta Meta) error {
 func (w *Writer) Write(batch []bus.Message) {
 	w.mu.Lock()
 	defer w.mu.Unlock()
-	if w.stopped {
+	if w.stopped || w.closed {
 		w.dropped += uint64(len(batch))
 		return
+	}
+	if len(batch) > 0 {
+		w.lastDataT = batch[len(batch)-1].T
 	}
 	for i := range batch {
 		if w.enc.full() {
@@ -329,7 +335,8 @@ func (w *Writer) Profile(t int64, name, text, hash string) {
 	w.profiles = append(w.profiles, ProfileVersion{T: t, Name: name, Hash: hash, Text: text})
 }
 
-// Event records an event. An empty Kind is stored as "note".
+// Event records an event. An empty Kind is stored as "note". Set Source to
+// NoSource for an event of no particular source (the zero value is source 0).
 func (w *Writer) Event(e Event) {
 	if e.Kind == "" {
 		e.Kind = EventNote
@@ -381,7 +388,7 @@ func (w *Writer) Err() error {
 }
 
 // Dropped is the number of messages not recorded: dropped with a full queue,
-// or written after the recording stopped.
+// or written after the recording stopped or while closing.
 func (w *Writer) Dropped() uint64 {
 	w.mu.Lock()
 	defer w.mu.Unlock()

@@ -254,9 +254,11 @@ func TestOpenRefuses(t *testing.T) {
 
 // TestDiskFull fills a size-limited file: recording stops with a clear
 // error, Write keeps returning at once, what was committed stays readable.
+// A queue of two blocks (about 50 KB each here) keeps every transaction far
+// below the 1 MB limit, so some commits succeed before one fails.
 func TestDiskFull(t *testing.T) {
 	path := filepath.Join(t.TempDir(), "s.db")
-	w, err := Create(path, testMeta, Options{Lossless: true, MaxBytes: 1 << 20, CommitBlocks: 2})
+	w, err := Create(path, testMeta, Options{Lossless: true, MaxBytes: 1 << 20, QueueBlocks: 2, CommitBlocks: 1})
 	if err != nil {
 		t.Fatal(err)
 	}
