@@ -4,6 +4,7 @@ package bus_test
 
 import (
 	"context"
+	"encoding/binary"
 	"errors"
 	"net"
 	"os"
@@ -227,4 +228,41 @@ func TestSocketCANVcan(t *testing.T) {
 		}
 		return n == 100
 	})
+}
+
+// Our 16-byte encoder, read back by einride's socketcan.Receiver over a
+// SOCK_SEQPACKET socketpair (one datagram per frame, as on CAN_RAW), with
+// the REFERENCES.md frames (include/uapi/linux/can.h layout).
+func TestFrame16ThroughEinrideReceiver(t *testing.T) {
+	fds, err := unix.Socketpair(unix.AF_UNIX, unix.SOCK_SEQPACKET|unix.SOCK_CLOEXEC, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	w := os.NewFile(uintptr(fds[0]), "w")
+	r := os.NewFile(uintptr(fds[1]), "r")
+	want := []can.Frame{
+		{ID: 0x456, Length: 3, Data: can.Data{0x11, 0x22, 0x33}},
+		{ID: 0x12ABCDEF, IsExtended: true, Length: 2, Data: can.Data{0xAA, 0x55}},
+		{ID: 0x123, IsRemote: true},
+	}
+	for _, f := range want {
+		if _, err := w.Write(bus.AppendFrame16(nil, f, binary.NativeEndian)); err != nil {
+			t.Fatal(err)
+		}
+	}
+	w.Close()
+	rx := socketcan.NewReceiver(r)
+	defer rx.Close()
+	var got []can.Frame
+	for rx.Receive() {
+		got = append(got, rx.Frame())
+	}
+	if len(got) != len(want) {
+		t.Fatalf("received %d frames: %+v", len(got), got)
+	}
+	for i := range want {
+		if got[i] != want[i] {
+			t.Errorf("frame %d: %+v, want %+v", i, got[i], want[i])
+		}
+	}
 }
