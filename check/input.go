@@ -39,6 +39,7 @@ func RunCapture(ctx context.Context, eng Engine, packID string, p *config.Profil
 	if err != nil {
 		return Window{}, Raw{}, info, fmt.Errorf("read capture: %w", err)
 	}
+	info.Simulated = simulatedCapture(data)
 	names := SourceNames(p)
 	resolve := func(name string) (int, bool) {
 		for i, n := range names {
@@ -141,4 +142,21 @@ func RunRecording(ctx context.Context, eng Engine, packID string, rec *record.Re
 	}
 	w, raw := col.Finish()
 	return w, raw, info, nil
+}
+
+// simulatedCapture reports a capture whose leading comment lines say it was
+// simulated ("# simulated ...", as packwatch simulate writes).
+func simulatedCapture(data []byte) bool {
+	for len(data) > 0 && data[0] == '#' {
+		line := data
+		if i := bytes.IndexByte(data, '\n'); i >= 0 {
+			line, data = data[:i], data[i+1:]
+		} else {
+			data = nil
+		}
+		if bytes.HasPrefix(bytes.TrimSpace(bytes.TrimPrefix(line, []byte("#"))), []byte("simulated")) {
+			return true
+		}
+	}
+	return false
 }

@@ -172,12 +172,17 @@ func NewRecord(w Window, raw Raw, s Settings, in Inputs) *Record {
 	d.Seconds = math.Round(w.Seconds()*1000) / 1000
 	d.Messages = raw.Messages + raw.Dropped
 	d.AgeS = nil
-	if d.Mode != ModeLive && d.Mode != ModeSimulated && w.To > 0 {
-		if age := now.Sub(time.Unix(0, w.To)).Seconds(); w.To > int64(365*24*time.Hour) && age >= 0 {
-			d.AgeS = nump(math.Round(age))
+	future := 0.0
+	if d.Mode != ModeLive && d.Mode != ModeSimulated && w.To > int64(365*24*time.Hour) {
+		// Data times before 1971 come from a capture without a start time.
+		age := math.Round(now.Sub(time.Unix(0, w.To)).Seconds())
+		if age >= 0 {
+			d.AgeS = nump(age)
+		} else {
+			future = -age
 		}
 	}
-	d.Notice = notice(d)
+	d.Notice = notice(d, future)
 	r.Data = d
 
 	if l == nil {
@@ -191,8 +196,10 @@ func NewRecord(w Window, raw Raw, s Settings, in Inputs) *Record {
 	return r
 }
 
-// notice is the sentence that marks data that is not live.
-func notice(d DataInfo) string {
+// notice is the sentence that marks data that is not live. future > 0 is
+// how many seconds the data's end lies after the check (a clock set wrong,
+// or a simulation started ahead).
+func notice(d DataInfo, future float64) string {
 	var s string
 	switch d.Mode {
 	case ModeLive:
@@ -209,9 +216,12 @@ func notice(d DataInfo) string {
 	if d.Simulated {
 		s += ", SIMULATED DATA"
 	}
-	if d.AgeS != nil {
+	switch {
+	case d.AgeS != nil:
 		s += ": the data is " + ageWords(float64(*d.AgeS)) + " old"
-	} else {
+	case future > 0:
+		s += ": the data's end is " + ageWords(future) + " after the check's time (a clock set wrong, or simulated ahead)"
+	default:
 		s += ": the age of the data is unknown (no start time)"
 	}
 	return s + "."

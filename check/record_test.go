@@ -196,3 +196,29 @@ func TestHistoryChainAndTamper(t *testing.T) {
 		t.Errorf("bad hash: %v", err)
 	}
 }
+
+func TestNoticeAndSimulatedCapture(t *testing.T) {
+	for _, c := range []struct {
+		text string
+		want bool
+	}{
+		{"# start 2026-05-01T08:00:00Z\n# simulated by packwatch: invented data\n0.0 bms can 100 00\n", true},
+		{"# simulated\n", true},
+		{"# start 2026-05-01T08:00:00Z\n0.0 bms can 100 00\n# simulated later is data, not header\n", false},
+		{"", false},
+	} {
+		if got := simulatedCapture([]byte(c.text)); got != c.want {
+			t.Errorf("%q: %v", c.text, got)
+		}
+	}
+	// Data ending 90 s after the check's time.
+	r := testRecord(t, nil, time.Unix(0, t0+10e9).Add(-90*time.Second))
+	if r.Data.AgeS != nil || !strings.Contains(r.Data.Notice, "the data's end is 90 s after the check's time") {
+		t.Errorf("future data: %v %q", r.Data.AgeS, r.Data.Notice)
+	}
+	r = NewRecord(window(nil), Raw{}, testSettings(), Inputs{Profile: testProfile(), Now: time.Unix(0, t0),
+		Data: DataInfo{Mode: ModeCapture, Simulated: true}})
+	if !strings.HasPrefix(r.Data.Notice, "FROM A CAPTURE, NOT LIVE, SIMULATED DATA") {
+		t.Errorf("notice %q", r.Data.Notice)
+	}
+}
