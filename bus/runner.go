@@ -126,12 +126,12 @@ func (r *runner) Run(ctx context.Context, sink Sink) error {
 			break
 		}
 		lostAt, lostWhy = s.now(), err.Error()
-		s.status(StateDisconnected, lostWhy+"; retrying")
+		s.status(StateDisconnected, lostWhy+"; retrying ("+r.Stats().summary()+")")
 		if r.spec.Sleep(ctx, delay) != nil {
 			break
 		}
 	}
-	s.status(StateStopped, "stopped")
+	s.status(StateStopped, "stopped; "+r.Stats().summary())
 	return nil
 }
 

@@ -79,6 +79,9 @@ func TestSerialCANOpenSequenceOnReconnect(t *testing.T) {
 			t.Fatal(err)
 		}
 		waitUntil(t, "the close command", func() bool { return p.written() == tc.seq+"C\r" })
+		if sts := rec.Statuses(); !strings.Contains(sts[len(sts)-1].Reason, "stopped; 10 messages, 220 bytes") {
+			t.Errorf("last status %q", sts[len(sts)-1].Reason)
+		}
 		if p.opens != 2 {
 			t.Fatalf("%d ptys", p.opens)
 		}

@@ -102,7 +102,15 @@ func (a *socketCANAdapter) counts(st *Stats) (good, bad uint64) {
 }
 
 func (a *socketCANAdapter) hint(w window) string {
-	return frameHint(w, &a.lastErr, &a.dec)
+	before := a.lastErr
+	h := frameHint(w, &a.lastErr, &a.dec)
+	if a.lastErr != before {
+		// Error frames arrived: say what state the controller is in now.
+		if ci, err := readCANInterface(a.spec.Device); err == nil && ci.State != "" {
+			h += "; interface " + ci.State
+		}
+	}
+	return h
 }
 
 // datagramLink reads a socket where each datagram is one 16-byte frame

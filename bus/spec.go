@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"strconv"
 	"strings"
 	"time"
 )
@@ -182,4 +183,22 @@ type Stats struct {
 	Reconnects  uint64 // successful connections after the first
 	Overrun     bool   // the serial line is saturated: frames are being lost
 	Hint        string // the current diagnostic in words, "" when all is well
+}
+
+// summary gives the main counters in words: "1204 messages, 3 bad, 2 CAN
+// error frames, 8431 bytes".
+func (s Stats) summary() string {
+	var b strings.Builder
+	b.WriteString(strconv.FormatUint(s.Messages, 10) + " messages")
+	if s.Bad > 0 {
+		b.WriteString(", " + strconv.FormatUint(s.Bad, 10) + " bad")
+	}
+	if s.ErrorFrames > 0 {
+		b.WriteString(", " + strconv.FormatUint(s.ErrorFrames, 10) + " CAN error frames")
+	}
+	if s.Cut > 0 {
+		b.WriteString(", " + strconv.FormatUint(s.Cut, 10) + " long lines cut")
+	}
+	b.WriteString(", " + strconv.FormatUint(s.Bytes, 10) + " bytes")
+	return b.String()
 }
