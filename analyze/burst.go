@@ -17,10 +17,13 @@ type BurstOptions struct {
 
 func (o BurstOptions) withDefaults(s *Session, deadband float64) BurstOptions {
 	if o.ThresholdA <= 0 {
-		var flowing []float64
-		for _, v := range s.Current.V {
-			if math.Abs(v) > deadband {
-				flowing = append(flowing, math.Abs(v))
+		// |I| while current flows, from a regular sample of the readings
+		x := s.Current.V
+		stride := max(1, len(x)/medianSample)
+		flowing := make([]float64, 0, len(x)/stride+1)
+		for i := 0; i < len(x); i += stride {
+			if math.Abs(x[i]) > deadband {
+				flowing = append(flowing, math.Abs(x[i]))
 			}
 		}
 		o.ThresholdA = math.Max(0.5*s.Pack.CapacityAh, 1.5*median(flowing))

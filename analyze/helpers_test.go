@@ -2,14 +2,12 @@ package analyze
 
 import (
 	"math"
-	"os"
 	"sync"
 	"testing"
 
 	"packwatch/analyze/synthtest"
 	"packwatch/config"
 	"packwatch/decode"
-	"packwatch/sim"
 )
 
 // compile loads a test profile.
@@ -98,10 +96,5 @@ func synthSession(t testing.TB) (*Session, truth) {
 	return synthS, synthT
 }
 
-var _ = sim.SpeedMax
-
 // near reports |got − want| ≤ tol.
 func near(got, want, tol float64) bool { return math.Abs(got-want) <= tol }
-
-// noSkip reports whether skips must fail (CI).
-func noSkip() bool { return os.Getenv("PACKWATCH_NO_SKIP") == "1" }

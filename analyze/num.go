@@ -11,7 +11,7 @@ import (
 // significant digits.
 type Num float64
 
-// None is the missing number.
+// none is the missing number.
 var none = Num(math.NaN())
 
 // Valid reports whether the number is finite.

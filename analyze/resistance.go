@@ -192,6 +192,7 @@ func measureStep(s *Session, k int, opt StepOptions, deadband float64) (Step, st
 	st.Resist = pr
 	var sum0 float64
 	all := len(s.Cells) > 0
+	st.Cells = []Resist{}
 	for c := range s.Cells {
 		r, _, ok := ch.measure(&s.Cells[c])
 		r.Cell = c + 1

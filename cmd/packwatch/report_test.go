@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"encoding/json"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -183,6 +184,34 @@ func TestCurve(t *testing.T) {
 		magic := map[string]string{"c.png": "\x89PNG", "c.svg": "<?xml"}[name]
 		if err != nil || !bytes.HasPrefix(b, []byte(magic)) {
 			t.Errorf("%s: %v, starts %q", name, err, b[:min(8, len(b))])
+		}
+	}
+}
+
+// FuzzParseStep: a charge step never panics, and an accepted one is a
+// positive finite number of Ah.
+func FuzzParseStep(f *testing.F) {
+	for _, s := range []string{"1Ah", "0.5ah", "500mAh", "2", "-1Ah", "NaN", "Inf", "", "1e308mAh", "ah"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		v, err := parseStep(s)
+		if err == nil && !(v > 0 && !math.IsInf(v, 0) && !math.IsNaN(v)) {
+			t.Fatalf("parseStep(%q) = %v", s, v)
+		}
+	})
+}
+
+// TestParseStep: the units of --step.
+func TestParseStep(t *testing.T) {
+	for in, want := range map[string]float64{"1Ah": 1, "0.5Ah": 0.5, "500mAh": 0.5, "2": 2, " 3 AH ": 3} {
+		if got, err := parseStep(in); err != nil || got != want {
+			t.Errorf("parseStep(%q) = %v, %v; want %v", in, got, err, want)
+		}
+	}
+	for _, in := range []string{"0", "-1Ah", "x", "NaN", "+Inf"} {
+		if _, err := parseStep(in); err == nil {
+			t.Errorf("parseStep(%q) accepted", in)
 		}
 	}
 }
