@@ -444,8 +444,9 @@ func (s *Sim) garbageUpTo(t int64) {
 }
 
 // appendGarbage adds malformed data on every source at data time t (ns
-// from the start): a frame with an ID the profile does not know, a frame too
-// short for the fields of a known one, a console line of junk.
+// from the start): on CAN sources a frame with an ID the profile does not
+// know and a frame too short for the fields of a known one; on every source
+// a line of junk characters (on a CAN source, bytes that are no frame).
 func (s *Sim) appendGarbage(t int64) {
 	p := s.dm.Profile()
 	for k := range p.Sources {
@@ -467,8 +468,9 @@ func (s *Sim) appendGarbage(t int64) {
 					break
 				}
 			}
-			continue
 		}
+		// bytes that are no frame and no line of the profile: a serial-line
+		// target writes them as they are
 		junk := make([]byte, 8+s.rng.IntN(24))
 		for i := range junk {
 			junk[i] = byte(0x21 + s.rng.IntN(94))

@@ -21,7 +21,9 @@ const (
 	FormatCapture Format = iota + 1
 	// FormatText writes console lines ended by CR LF, as a serial console.
 	FormatText
-	// FormatSLCAN writes frames as ASCII serial-line CAN lines (bus.AppendSLCAN).
+	// FormatSLCAN writes frames as ASCII serial-line CAN lines
+	// (bus.AppendSLCAN), and the text of a line message on the same source
+	// as it is (the garbage fault's bytes).
 	FormatSLCAN
 	// FormatFrame16 writes frames in the 16-byte SocketCAN layout, ID
 	// little-endian, as the tcp-can source reads them (bus.AppendFrame16).
@@ -116,7 +118,9 @@ func (t *TargetSink) carries(m *bus.Message) bool {
 		return m.Kind == bus.KindCAN || m.Kind == bus.KindLine || m.Kind == bus.KindGap
 	case FormatText:
 		return m.Kind == bus.KindLine
-	case FormatSLCAN, FormatFrame16:
+	case FormatSLCAN:
+		return m.Kind == bus.KindCAN || m.Kind == bus.KindLine // a line: garbage bytes
+	case FormatFrame16:
 		return m.Kind == bus.KindCAN
 	}
 	return false
@@ -134,6 +138,11 @@ func (t *TargetSink) append(m *bus.Message) {
 		t.buf = append(t.buf, m.Text...)
 		t.buf = append(t.buf, '\r', '\n')
 	case FormatSLCAN:
+		if m.Kind == bus.KindLine {
+			t.buf = append(t.buf, m.Text...)
+			t.buf = append(t.buf, '\r')
+			break
+		}
 		t.buf = bus.AppendSLCAN(t.buf, m.Frame)
 	case FormatFrame16:
 		t.buf = bus.AppendFrame16(t.buf, m.Frame, binary.LittleEndian)

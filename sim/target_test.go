@@ -145,6 +145,23 @@ func TestTargetDeviceFormats(t *testing.T) {
 	}
 }
 
+// Garbage on a serial-line CAN target reaches the wire as bytes the slcan
+// decoder counts as bad, while the frames around it still arrive.
+func TestTargetSLCANGarbage(t *testing.T) {
+	var slc bytes.Buffer
+	ts := NewTargetSink(&slc, TargetOptions{Format: FormatSLCAN, Sources: []uint16{0}})
+	s, _ := newBuoySim(t, Options{Speed: SpeedMax, For: 30 * time.Second, Faults: []Fault{{Kind: FaultGarbage}}})
+	if err := s.Run(context.Background(), ts); err != nil {
+		t.Fatal(err)
+	}
+	var dec bus.SLCANDecoder
+	n := 0
+	dec.Feed(slc.Bytes(), func(can.Frame, uint16, bool) { n++ })
+	if st := dec.Stats(); st.Bad < 25 || n < 900 {
+		t.Errorf("%d bad lines, %d frames; want 30 bad and about 1000 frames", st.Bad, n)
+	}
+}
+
 func equalFrames(a, b []can.Frame) bool {
 	if len(a) != len(b) {
 		return false
