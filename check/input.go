@@ -116,10 +116,14 @@ func RecordingSources(meta record.Meta, p *config.Profile) (srcMap []int, names 
 
 // RunRecording replays a recording into eng (whose pack must be added with
 // the map from RecordingSources) and returns the checked window: the whole
-// recording or its last `last` of data time.
-func RunRecording(ctx context.Context, eng Engine, packID string, rec *record.Reader, names []string, last time.Duration) (Window, Raw, DataInfo, error) {
+// recording or its last `last` of data time. When the recording's last
+// profile version is not p, the data's source says so.
+func RunRecording(ctx context.Context, eng Engine, packID string, rec *record.Reader, names []string, last time.Duration, p *config.Profile) (Window, Raw, DataInfo, error) {
 	meta := rec.Meta()
 	info := DataInfo{Mode: ModeReplay, Source: "recording " + rec.Path(), Simulated: meta.Mode == "simulated"}
+	if vs, err := rec.Profiles(); err == nil && len(vs) > 0 && p != nil && vs[len(vs)-1].Hash != p.Hash {
+		info.Source += fmt.Sprintf(" (recorded with profile %q sha256 %s, checked with this profile)", vs[len(vs)-1].Name, short(vs[len(vs)-1].Hash))
+	}
 	first, end, ok, err := rec.Span()
 	if err != nil {
 		return Window{}, Raw{}, info, err

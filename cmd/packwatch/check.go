@@ -149,7 +149,7 @@ aircraft or vehicle documentation rule.`)
 			fmt.Fprintln(stderr, "check:", err)
 			return exitBad
 		}
-		w, raw, info, err = check.RunRecording(ctx, eng, id, rec, names, last)
+		w, raw, info, err = check.RunRecording(ctx, eng, id, rec, names, last, p)
 	default:
 		if err := eng.AddPack(id, m, nil); err != nil {
 			fmt.Fprintln(stderr, "check:", err)
