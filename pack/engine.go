@@ -35,6 +35,13 @@ type Options struct {
 	Mode string
 	// RawSink, if set, gets every batch.
 	RawSink RawSink
+	// WallClockAges makes a snapshot judge ages and staleness at the later of
+	// data time and the snapshot's server time. Set it for live sources,
+	// whose data time is wall time: when every source falls silent, data time
+	// stops, and without this the last readings would look fresh forever.
+	// Leave it off for captures, recordings and the simulator, whose data
+	// time is their own. Trips and counting stay on data time either way.
+	WallClockAges bool
 }
 
 // Engine owns the state of every pack: their compiled maps, readings,
@@ -151,8 +158,12 @@ func (e *Engine) Snapshot(serverTime time.Time) *Snapshot {
 		Mode:       e.opt.Mode,
 		Packs:      make([]PackSnapshot, 0, len(e.packs)),
 	}
+	now := e.dataT
+	if e.opt.WallClockAges && serverTime.UnixNano() > now {
+		now = serverTime.UnixNano()
+	}
 	for _, ps := range e.packs {
-		s.Packs = append(s.Packs, ps.snapshot(e.dataT, e.status))
+		s.Packs = append(s.Packs, ps.snapshot(now, e.status))
 	}
 	return s
 }

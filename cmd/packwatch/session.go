@@ -73,7 +73,7 @@ func newSession(profiles []*config.Profile, maps []*decode.Map, mode string, rec
 // kind and device, else (when byName) of the same name.
 func newSessionOn(devices []device, byName bool, profiles []*config.Profile, maps []*decode.Map, mode string, rec *record.Writer, log *slog.Logger) (*session, error) {
 	s := &session{mode: mode, rec: rec, log: log, devices: devices}
-	opt := pack.Options{Mode: mode}
+	opt := pack.Options{Mode: mode, WallClockAges: mode == "live"}
 	var stats *statsRecorder
 	if rec != nil {
 		stats = &statsRecorder{}

@@ -1,0 +1,34 @@
+package pack
+
+import (
+	"testing"
+	"time"
+
+	"packwatch/bus"
+)
+
+// TestWallClockAges: with live sources, a pack whose sources all fall silent
+// must not look fresh: ages grow with the server's clock. Captures and
+// replays judge ages on their own data time.
+func TestWallClockAges(t *testing.T) {
+	for _, wall := range []bool{false, true} {
+		e := NewEngine(Options{Mode: "live", WallClockAges: wall})
+		if err := e.AddPack("winch", loadMap(t, ""), nil); err != nil {
+			t.Fatal(err)
+		}
+		e.Deliver([]bus.Message{canMsg(epoch, 0x4C0, 0x00, 0x4C, 0x0F, 0x50, 0x0F, 0x55, 0x0F)})
+		// ten seconds later on the wall, nothing more arrived
+		snap := e.Snapshot(time.Unix(0, epoch+10*sec))
+		c := snap.Packs[0].Cells[0]
+		want := "ok"
+		if wall {
+			want = "stale"
+		}
+		if c.State != want {
+			t.Errorf("WallClockAges=%v: cell 1 state %q, want %q", wall, c.State, want)
+		}
+		if wall && (c.Age == nil || float64(*c.Age) != 10) {
+			t.Errorf("age = %v, want 10 s", c.Age)
+		}
+	}
+}
