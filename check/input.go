@@ -164,3 +164,35 @@ func simulatedCapture(data []byte) bool {
 	}
 	return false
 }
+
+// EventRecord is a check result found in a recording.
+type EventRecord struct {
+	T      int64   // data time of the event, ns
+	Text   string  // the event's one-line text
+	Record *Record // nil when the event's JSON is not a record
+	// Err says why the record is missing or does not match its hash.
+	Err error
+}
+
+// RecordedChecks returns the check results a session recorded (events of
+// kind "check"), each verified against its hash: what a report of the
+// session lists.
+func RecordedChecks(rec *record.Reader) ([]EventRecord, error) {
+	evs, err := rec.Events()
+	if err != nil {
+		return nil, err
+	}
+	var out []EventRecord
+	for _, e := range evs {
+		if e.Kind != record.EventCheck {
+			continue
+		}
+		er := EventRecord{T: e.T, Text: e.Text}
+		er.Record, er.Err = ParseRecord([]byte(e.JSON))
+		if er.Err == nil {
+			er.Err = er.Record.VerifyHash()
+		}
+		out = append(out, er)
+	}
+	return out, nil
+}
