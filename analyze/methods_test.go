@@ -477,3 +477,55 @@ func TestNumJSON(t *testing.T) {
 		t.Errorf("%s %v", b, err)
 	}
 }
+
+// TestGapSplitsSegments: a gap in the data ends a segment, and no charge is
+// counted across it (README "Timing and trips": never integrate across a gap).
+func TestGapSplitsSegments(t *testing.T) {
+	s := &Session{Pack: PackInfo{CapacityAh: 10}}
+	for k := 0; k <= 2000; k++ {
+		tt := float64(k)
+		if k > 1000 {
+			tt += 500 // the data resumes 500 s later
+		}
+		s.Current.Add(tt, -2)
+	}
+	s.Gaps = []float64{1200}
+	s.Finish()
+	ch := countCharge(s)
+	segs := Segments(s, ch, SegmentOptions{})
+	if len(segs) != 2 || segs[0].Kind != Discharge || segs[1].Kind != Discharge {
+		t.Fatalf("segments %+v, want two discharges", segs)
+	}
+	if got := -ch.Q[len(ch.Q)-1] * 3600; math.Abs(got-2*1999) > 1e-6 {
+		t.Errorf("counted %.3f A·s, want %d (nothing across the gap)", got, 2*1999)
+	}
+}
+
+// TestDerivedPackVoltage: without pack.voltage, the pack is the sum of the
+// cells and its resistance the sum of theirs.
+func TestDerivedPackVoltage(t *testing.T) {
+	s := &Session{Pack: PackInfo{Cells: 2, CapacityAh: 10}, Cells: make([]Trace, 2)}
+	r := []float64{0.010, 0.020}
+	for k := 0; k <= 400; k++ {
+		tt := float64(k) / 10
+		i := 0.0
+		if tt >= 20 {
+			i = -10
+		}
+		s.Current.Add(tt, i)
+		for c := range r {
+			s.Cells[c].Add(tt+0.04, 3.7+r[c]*i)
+		}
+	}
+	s.Finish()
+	if !s.PackVDerived || s.PackV.Empty() {
+		t.Fatal("pack voltage not derived")
+	}
+	steps, rej := Steps(s, StepOptions{}, 0.2, func(float64) float64 { return math.NaN() })
+	if len(steps) != 1 {
+		t.Fatalf("%d steps, rejected %+v", len(steps), rej)
+	}
+	if got := float64(steps[0].R0); math.Abs(got-30) > 1e-6 || steps[0].InterconnectR0.Valid() {
+		t.Errorf("pack R0 %.4f mΩ (want 30, the cells' sum), interconnect %v (want none)", got, steps[0].InterconnectR0)
+	}
+}

@@ -206,12 +206,29 @@ func measureStep(s *Session, k int, opt StepOptions, deadband float64) (Step, st
 		st.Cells = append(st.Cells, r)
 	}
 	st.CellSumR0, st.InterconnectR0 = none, none
-	if all && !s.PackVDerived {
+	switch {
+	case all && s.PackVDerived:
+		// the pack voltage is the sum of the cells taken at the current's
+		// times: its resistances are the sums of the cells' own
+		st.Resist = sumResist(st.Cells)
+	case all:
 		st.CellSumR0 = Num(sum0)
 		st.InterconnectR0 = Num(float64(st.R0) - sum0)
 	}
 	st.Flags = outliers(st.Cells, st.InterconnectR0)
 	return st, ""
+}
+
+// sumResist adds the cells' resistances (a missing one makes the sum missing).
+func sumResist(cells []Resist) Resist {
+	var r Resist
+	for _, c := range cells {
+		r.R0 += c.R0
+		r.R1s += c.R1s
+		r.R10s += c.R10s
+		r.Delay = Num(math.Max(float64(r.Delay), float64(c.Delay)))
+	}
+	return r
 }
 
 // stepChannel measures one voltage channel at a step.
