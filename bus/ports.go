@@ -103,3 +103,25 @@ func FindPort(id USBID, ports []PortInfo) (string, error) {
 	}
 	return "", fmt.Errorf("%d ports are %s (%s): add the serial number to tell them apart", len(names), id, strings.Join(names, ", "))
 }
+
+// preferCallout drops macOS dial-in devices (/dev/tty.X) that have a
+// call-out twin (/dev/cu.X) in the list: opening the tty. device waits for
+// the carrier-detect line, so the cu. one is the one to use (common
+// practice, no source).
+func preferCallout(ports []PortInfo, goos string) []PortInfo {
+	if goos != "darwin" {
+		return ports
+	}
+	have := map[string]bool{}
+	for _, p := range ports {
+		have[p.Name] = true
+	}
+	out := ports[:0:0]
+	for _, p := range ports {
+		if rest, ok := strings.CutPrefix(p.Name, "/dev/tty."); ok && have["/dev/cu."+rest] {
+			continue
+		}
+		out = append(out, p)
+	}
+	return out
+}

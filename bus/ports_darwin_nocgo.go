@@ -4,6 +4,7 @@ package bus
 
 import (
 	"fmt"
+	"runtime"
 	"sort"
 
 	"go.bug.st/serial"
@@ -21,6 +22,7 @@ func ListPorts() ([]PortInfo, error) {
 	for _, n := range names {
 		out = append(out, PortInfo{Name: n})
 	}
+	out = preferCallout(out, runtime.GOOS)
 	sort.Slice(out, func(i, j int) bool { return out[i].Name < out[j].Name })
 	return out, nil
 }

@@ -4,6 +4,7 @@ package bus
 
 import (
 	"fmt"
+	"runtime"
 	"sort"
 	"strings"
 
@@ -24,6 +25,7 @@ func ListPorts() ([]PortInfo, error) {
 		out = append(out, PortInfo{Name: p.Name, USB: p.IsUSB, VID: strings.ToUpper(p.VID), PID: strings.ToUpper(p.PID),
 			Serial: p.SerialNumber, Product: p.Product, Manufacturer: p.Manufacturer})
 	}
+	out = preferCallout(out, runtime.GOOS)
 	sort.Slice(out, func(i, j int) bool { return out[i].Name < out[j].Name })
 	return out, nil
 }

@@ -5,6 +5,7 @@ import (
 	"flag"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 )
 
@@ -101,5 +102,20 @@ func TestReadPortsReport(t *testing.T) {
 		if c.Name == "" {
 			t.Errorf("CAN interface without a name: %+v", c)
 		}
+	}
+}
+
+func TestPreferCallout(t *testing.T) {
+	in := []PortInfo{{Name: "/dev/cu.usbserial-X1"}, {Name: "/dev/tty.usbserial-X1"}, {Name: "/dev/tty.Bluetooth"}, {Name: "/dev/cu.Bluetooth"}, {Name: "/dev/tty.only"}}
+	got := preferCallout(append([]PortInfo(nil), in...), "darwin")
+	var names []string
+	for _, p := range got {
+		names = append(names, p.Name)
+	}
+	if want := "/dev/cu.usbserial-X1 /dev/cu.Bluetooth /dev/tty.only"; strings.Join(names, " ") != want {
+		t.Errorf("darwin: %v, want %s", names, want)
+	}
+	if got := preferCallout(append([]PortInfo(nil), in...), "linux"); len(got) != len(in) {
+		t.Errorf("linux: %d ports, want %d", len(got), len(in))
 	}
 }
