@@ -365,4 +365,3 @@ type checkSliceSink struct{ msgs []bus.Message }
 
 func (s *checkSliceSink) Deliver(b []bus.Message) { s.msgs = append(s.msgs, b...) }
 func (s *checkSliceSink) Status(bus.Status)       {}
-
