@@ -17,9 +17,9 @@
 // frame bits, and generates console text from each line's RE2 pattern, so the
 // simulated data goes through the real decode path.
 //
-// Sim (sim.go) runs it all: Run delivers batches to a bus.Sink from the
-// caller's goroutine, paced in wall time by Options.Speed, with data time equal
-// to simulated time. Pause, Resume, Advance and ForceCell let tests hold the
+// Sim (sim.go, run.go, control.go, generate.go) runs it all: Run delivers
+// batches to a bus.Sink from the caller's goroutine, paced in wall time by
+// Options.Speed, with data time equal to simulated time. Pause, Resume, Advance and ForceCell let tests hold the
 // simulator still and push a cell past its limit.
 //
 // For "packwatch simulate", TargetSink (target.go) writes what Run delivers
