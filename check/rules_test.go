@@ -160,6 +160,11 @@ func TestRules(t *testing.T) {
 			p.CurrentWord, p.Current = "charging", np(20)
 		}, "charge_temperature", Pass, "while charging"},
 
+		{"charge window no data", func(i int, p *pack.PackSnapshot) {
+			p.CurrentWord, p.Current = "charging", np(20)
+			p.Temps[0].State, p.Temps[1].State = "stale", "stale"
+		}, "charge_temperature", NoData, "no pack temperature"},
+
 		{"rest current pass", nil, "rest_current", Pass, "at rest"},
 		{"rest current fail discharging", func(i int, p *pack.PackSnapshot) {
 			if i == 7 {
@@ -210,13 +215,18 @@ func TestRules(t *testing.T) {
 		}, "trips", Pass, "no limit"},
 
 		{"rate pass", nil, "rate.bms", Pass, "kept"}, // 1000 messages / 10 s = 100 Hz
+		{"rate no data short window", nil, "rate.bms", NoData, "shorter than one second"},
 		{"rate fail silent", func(i int, p *pack.PackSnapshot) {
 			p.Sources[0].Messages, p.Sources[0].Diagnosis = 500, "no message for 10 s"
 		}, "rate.bms", Fail, "sent nothing during the check (no message for 10 s)"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
-			rs := Evaluate(window(c.mod), testSettings())
+			w := window(c.mod)
+			if c.name == "rate no data short window" {
+				w.To = w.From + 5e8
+			}
+			rs := Evaluate(w, testSettings())
 			r := find(rs, c.rule)
 			if r == nil {
 				t.Fatalf("no rule %s in %+v", c.rule, rs)

@@ -167,6 +167,9 @@ aircraft or vehicle documentation rule.`)
 
 	rec := check.NewRecord(w, raw, settings, check.Inputs{Profile: p, PackID: id, Operator: *operator, Note: *note,
 		PackSerial: *packIDFlag, Data: info, Confirmed: confirmed, Now: time.Now()})
+	if *packIDFlag != "" && rec.Pack.SerialFrom == "bms" && rec.Pack.Serial != *packIDFlag {
+		fmt.Fprintf(stderr, "check: WARNING: the BMS reports serial %s, not --pack-id %s: the record keeps the BMS's\n", rec.Pack.Serial, *packIDFlag)
+	}
 	prev, err := hist.Last(ctx, rec.Pack.Key)
 	if err != nil {
 		fmt.Fprintln(stderr, "check:", err)
