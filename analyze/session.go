@@ -37,13 +37,14 @@ type Session struct {
 
 // PackInfo is what the analysis needs from the profile's [pack].
 type PackInfo struct {
-	Name       string
-	Cells      int
-	Sensors    int
-	CapacityAh float64 // rated capacity, for C-rates and SOC
-	Chemistry  string
-	// SensorRoles[k] is sensor k+1's role (cell, busbar, ambient, coolant).
-	SensorRoles []string
+	Name       string  `json:"name"`
+	Cells      int     `json:"cells"`
+	Sensors    int     `json:"temp_sensors"`
+	CapacityAh float64 `json:"capacity_ah"` // rated capacity, for C-rates and SOC
+	Chemistry  string  `json:"chemistry"`
+	// SensorRoles[k] is sensor k+1's role (cell, busbar, ambient, coolant;
+	// "" when the profile does not say).
+	SensorRoles []string `json:"sensor_roles"`
 }
 
 // Duration is the time from the first to the last current reading, s.
