@@ -197,7 +197,7 @@ func NewEncoder(m *decode.Map) (*Encoder, error) {
 			fill := map[int]string{}
 			for _, lf := range inst.fields {
 				if lf.f.IndexGroup >= 0 {
-					fill[lf.f.IndexGroup] = strconv.Itoa(inst.idx)
+					fill[lf.f.IndexGroup] = formatIndex(ls.gen, lf.f.IndexGroup, inst.idx)
 				}
 				if _, ok := formatFor(gen, lf.f.Group, 0); !ok {
 					e.warn = append(e.warn, fmt.Sprintf("%s: group %d of %q takes no number; these lines are not simulated", lf.f.Path, lf.f.Group, spec.Re.String()))
@@ -314,7 +314,7 @@ func (e *Encoder) lineText(ls *lineSched, inst *lineInst, r readingSource) (stri
 	fill := make(map[int]string, len(inst.fields)+1)
 	for i, lf := range inst.fields {
 		if lf.f.IndexGroup >= 0 {
-			fill[lf.f.IndexGroup] = strconv.Itoa(inst.idx)
+			fill[lf.f.IndexGroup] = formatIndex(ls.gen, lf.f.IndexGroup, inst.idx)
 		}
 		rd := r.reading(lf.slot)
 		num := (rd.Value - lf.f.Offset) / lf.f.Scale

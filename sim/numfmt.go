@@ -66,3 +66,19 @@ func formatFor(g *lineGen, group int, num float64, hint ...*int) (string, bool) 
 	}
 	return "", false
 }
+
+// formatIndex writes a line's index number as its group accepts it: as it
+// is, or with leading zeros to 2, 3 or 4 digits ("C03" for `C(?P<n>\d{2})`).
+func formatIndex(g *lineGen, group, idx int) string {
+	s := strconv.Itoa(idx)
+	if g.Fits(group, s) {
+		return s
+	}
+	for w := len(s) + 1; w <= 4; w++ {
+		p := strings.Repeat("0", w-len(s)) + s
+		if g.Fits(group, p) {
+			return p
+		}
+	}
+	return s
+}

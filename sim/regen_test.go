@@ -95,3 +95,16 @@ func TestEncoderWarnsOnUnwritableLine(t *testing.T) {
 		t.Errorf("warnings for the example profile: %q", enc.Warnings())
 	}
 }
+
+func TestFormatIndex(t *testing.T) {
+	re := regexp.MustCompile(`^C(?P<n>\d{2}) T(?P<m>\d{3})? X(?P<k>\d+)$`)
+	g, _ := newLineGen(re)
+	for _, c := range []struct {
+		group, idx int
+		want       string
+	}{{1, 3, "03"}, {1, 12, "12"}, {2, 7, "007"}, {3, 7, "7"}, {3, 123, "123"}} {
+		if got := formatIndex(g, c.group, c.idx); got != c.want {
+			t.Errorf("group %d index %d: %q, want %q", c.group, c.idx, got, c.want)
+		}
+	}
+}
