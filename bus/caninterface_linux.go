@@ -69,3 +69,14 @@ func readCANInterface(name string) (CANInterface, error) {
 	}
 	return ci, nil
 }
+
+// canKernelNote says why no CAN interface can exist, or "" when the kernel
+// has CAN sockets.
+func canKernelNote() string {
+	fd, err := unix.Socket(unix.AF_CAN, unix.SOCK_RAW|unix.SOCK_CLOEXEC, unix.CAN_RAW)
+	if err != nil {
+		return "this kernel has no CAN sockets (" + err.Error() + "); modprobe can_raw, or use a serial-line CAN adapter"
+	}
+	unix.Close(fd)
+	return ""
+}

@@ -4,3 +4,5 @@ package bus
 
 // ListCANInterfaces returns nothing: SocketCAN exists only on Linux.
 func ListCANInterfaces() ([]CANInterface, error) { return nil, nil }
+
+func canKernelNote() string { return "" }

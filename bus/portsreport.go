@@ -14,6 +14,8 @@ type PortsReport struct {
 	CAN   []CANInterface
 	// CANSupported is false where SocketCAN does not exist (not Linux).
 	CANSupported bool
+	// CANNote explains an empty CAN list ("this kernel has no CAN sockets").
+	CANNote string
 }
 
 // ReadPortsReport lists this machine's ports and CAN interfaces.
@@ -26,7 +28,11 @@ func ReadPortsReport() (PortsReport, error) {
 	if err != nil {
 		return PortsReport{}, err
 	}
-	return PortsReport{Ports: ports, CAN: cans, CANSupported: runtime.GOOS == "linux"}, nil
+	r := PortsReport{Ports: ports, CAN: cans, CANSupported: runtime.GOOS == "linux"}
+	if r.CANSupported && len(cans) == 0 {
+		r.CANNote = canKernelNote()
+	}
+	return r, nil
 }
 
 // WriteTo prints the report as aligned text.
@@ -64,6 +70,8 @@ func (r PortsReport) WriteTo(w io.Writer) (int64, error) {
 	switch {
 	case !r.CANSupported:
 		fmt.Fprintln(tw, "  SocketCAN exists only on Linux; use a serial-line CAN adapter (kind = \"serial-can\")")
+	case len(r.CAN) == 0 && r.CANNote != "":
+		fmt.Fprintln(tw, "  none: "+r.CANNote)
 	case len(r.CAN) == 0:
 		fmt.Fprintln(tw, "  none found")
 	default:

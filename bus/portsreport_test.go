@@ -25,7 +25,8 @@ func TestPortsReportGolden(t *testing.T) {
 			},
 			CANSupported: true,
 		},
-		"ports_other": {CANSupported: false},
+		"ports_other":  {CANSupported: false},
+		"ports_no_can": {CANSupported: true, CANNote: "this kernel has no CAN sockets (address family not supported by protocol); modprobe can_raw, or use a serial-line CAN adapter"},
 	} {
 		var b bytes.Buffer
 		if _, err := r.WriteTo(&b); err != nil {
