@@ -424,7 +424,7 @@
       tr.children[1].textContent = fmt(m.value, d, m.unit);
       tr.children[2].textContent = fmt(m.bound, d, m.unit);
       tr.children[3].textContent = isNum(m.margin) ? (m.margin < 0 ? "past by " + fmt(-m.margin, d, m.unit) : fmt(m.margin, d, m.unit)) : "--";
-      tr.children[4].textContent = isNum(m.to_limit_s) ? "\u2248 " + dur(m.to_limit_s) : "no trend";
+      tr.children[4].textContent = isNum(m.margin) && m.margin <= 0 ? "" : isNum(m.to_limit_s) ? "\u2248 " + dur(m.to_limit_s) : "no trend";
     });
   }
 
@@ -578,7 +578,10 @@
     }
     all.forEach(function (x, i) {
       var li = list.children[i];
-      if (li) li.children[2].textContent = isNum(x.a.value) ? "value " + x.a.value.toFixed(3).replace(/\.?0+$/, "") : "";
+      if (!li) return;
+      var unit = "";
+      (x.p.margins || []).forEach(function (m) { if (m.limit === x.a.limit) unit = m.unit; });
+      li.children[2].textContent = isNum(x.a.value) ? "value " + fmt(x.a.value, unit === "V" ? 3 : unitDigits(unit), unit) : "";
     });
     alarmSound(all);
   }
