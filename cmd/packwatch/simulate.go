@@ -218,7 +218,11 @@ func simulate(ctx context.Context, a simulateArgs, stdout, stderr io.Writer) err
 		if b == 0 {
 			b = 115200
 		}
-		port, err := serial.Open(dest, &serial.Mode{BaudRate: b})
+		mode, err := serialModeOf(p.Sources[src], b)
+		if err != nil {
+			return err
+		}
+		port, err := serial.Open(dest, mode)
 		if err != nil {
 			return fmt.Errorf("open %s: %w", dest, err)
 		}
@@ -313,4 +317,38 @@ func drainPort(ctx context.Context, port serial.Port) <-chan struct{} {
 		}
 	}()
 	return done
+}
+
+// serialModeOf takes a source's line settings (data bits, parity, stop
+// bits; defaults 8N1) for the simulated end of the line.
+func serialModeOf(src config.Source, baud int) (*serial.Mode, error) {
+	m := &serial.Mode{BaudRate: baud, DataBits: src.DataBits}
+	if m.DataBits == 0 {
+		m.DataBits = 8
+	}
+	switch strings.ToLower(src.Parity) {
+	case "", "none", "n":
+		m.Parity = serial.NoParity
+	case "even", "e":
+		m.Parity = serial.EvenParity
+	case "odd", "o":
+		m.Parity = serial.OddParity
+	case "mark", "m":
+		m.Parity = serial.MarkParity
+	case "space", "s":
+		m.Parity = serial.SpaceParity
+	default:
+		return nil, fmt.Errorf("source %s: parity %q", src.Name, src.Parity)
+	}
+	switch src.StopBits {
+	case "", "1":
+		m.StopBits = serial.OneStopBit
+	case "1.5":
+		m.StopBits = serial.OnePointFiveStopBits
+	case "2":
+		m.StopBits = serial.TwoStopBits
+	default:
+		return nil, fmt.Errorf("source %s: stop bits %q", src.Name, src.StopBits)
+	}
+	return m, nil
 }
