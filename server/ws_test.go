@@ -441,3 +441,39 @@ func TestRunShutdown(t *testing.T) {
 		t.Error("second Run succeeded")
 	}
 }
+
+// TestWSPingPong: the server pings; a client that answers stays, one that
+// reads but never answers (and sends nothing) is dropped after two intervals.
+func TestWSPingPong(t *testing.T) {
+	rs := startServer(t, Options{Engine: newFakeEngine(4, 1), Tick: 50 * time.Millisecond, PingEvery: 50 * time.Millisecond})
+	good, _, err := dialWS(t, rs.base, nil, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var pings atomic.Int64
+	good.SetPingHandler(func(data string) error {
+		pings.Add(1)
+		return good.WriteControl(websocket.PongMessage, []byte(data), time.Now().Add(time.Second))
+	})
+	gr := startReader(good)
+	defer gr.close()
+	mute, _, err := dialWS(t, rs.base, nil, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	mute.SetPingHandler(func(string) error { return nil }) // never answers
+	mr := startReader(mute)
+	defer mr.close()
+	waitFor(t, "both registered", 10*time.Second, func() bool { return rs.s.hub.count() == 2 })
+	waitFor(t, "the silent client dropped", 30*time.Second, func() bool { return rs.s.hub.count() == 1 })
+	from := pings.Load()
+	waitFor(t, "the answering client pinged 5 more times", 30*time.Second, func() bool { return pings.Load() >= from+5 })
+	if rs.s.hub.count() != 1 {
+		t.Errorf("clients = %d, want the answering one kept", rs.s.hub.count())
+	}
+	select {
+	case <-gr.done:
+		t.Error("the answering client was dropped")
+	default:
+	}
+}
