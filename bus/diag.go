@@ -2,6 +2,7 @@ package bus
 
 import (
 	"fmt"
+	"strings"
 	"time"
 )
 
@@ -52,9 +53,19 @@ func (d *diagnoser) check(now int64, n, good, bad uint64, a adapter) (string, bo
 	case d.total > 0 && now-d.lastByte >= d.quiet:
 		h = fmt.Sprintf("nothing received in the last %v", time.Duration(d.quiet))
 	}
-	changed := h != d.hint
+	changed := hintKey(h) != hintKey(d.hint)
 	d.hint = h
 	return h, changed
+}
+
+// hintKey is a hint without its figures in parentheses, so that a condition
+// that lasts gives one status, not one per window (Stats.Hint keeps the
+// latest figures).
+func hintKey(h string) string {
+	if i := strings.Index(h, " ("); i >= 0 {
+		return h[:i]
+	}
+	return h
 }
 
 // serialCharBits is the number of bits a character takes on the line:

@@ -93,7 +93,8 @@ func TestDiagnoser(t *testing.T) {
 		{6 * s, 0, "", "nothing received in the first 5s", false}, // same words: no new status
 		{7 * s, 100, "", "", true},                                // bytes: all well
 		{8 * s, 100, "unreadable input", "unreadable input", true},
-		{9 * s, 100, "", "", true},
+		{9 * s, 100, "unreadable input (other figures)", "unreadable input", false}, // same condition: no new status
+		{10 * s, 100, "", "", true},
 		{15 * s, 0, "", "nothing received in the last 5s", true},
 	}
 	for i, st := range steps {

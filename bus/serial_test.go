@@ -209,7 +209,7 @@ func TestSerialCANRefusedHint(t *testing.T) {
 	rec := runSource(t, mustOpen(t, spec))
 	waitUntil(t, "open sequence", func() bool { return strings.Contains(p.written(), "C\rL\r") })
 	p.write(t, []byte("\r\a"))
-	rec.WaitFor(t, "refusal hint", hasReason("refused 1 command(s) (BEL)"))
+	rec.WaitFor(t, "refusal hint", hasReason("refuses commands and sends no frames (1 BEL"))
 }
 
 func TestSerialNoBytesHint(t *testing.T) {

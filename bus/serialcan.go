@@ -91,11 +91,11 @@ func (a *serialCANAdapter) hint(w window) string {
 		if a.spec.Normal {
 			mode = "normal mode (O)"
 		}
-		return fmt.Sprintf("the adapter refused %d command(s) (BEL) and sends no frames: it may not support %s or the bitrate command, or not speak this protocol", newRef, mode)
+		return fmt.Sprintf("the adapter refuses commands and sends no frames (%d BEL replies: it may not support %s or the bitrate command, or not speak this protocol)", newRef, mode)
 	}
 	if a.overran(w) {
 		capacity := float64(a.spec.Baud) / serialCharBits(a.spec)
-		return fmt.Sprintf("serial line saturated: %.0f frames/s use %.0f%% of %d baud, frames are being lost (this line carries about %.0f 8-byte frames/s; use a faster baud rate or a USB adapter)",
+		return fmt.Sprintf("serial line saturated, frames are being lost (%.0f frames/s use %.0f%% of %d baud; this line carries about %.0f 8-byte frames/s: use a faster baud rate or a USB adapter)",
 			float64(w.good)/w.dur.Seconds(), 100*lineLoad(a.spec, w), a.spec.Baud, capacity/slcanLineChars)
 	}
 	return ""

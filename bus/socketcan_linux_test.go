@@ -160,7 +160,7 @@ func TestSocketCANErrorFrames(t *testing.T) {
 	}
 	rec.WaitFor(t, "an error frame hint in words", func(ev []bustest.Event) bool {
 		for _, e := range ev {
-			if !e.IsMsg && strings.Contains(e.Status.Reason, "1 CAN error frames") && strings.Contains(e.Status.Reason, "error-warning") {
+			if !e.IsMsg && strings.Contains(e.Status.Reason, "CAN error frames: error-warning (1 in") {
 				return true
 			}
 		}

@@ -57,9 +57,9 @@ func frameHint(w window, lastErr *uint64, dec *frame16Decoder) string {
 	*lastErr = dec.errs
 	switch {
 	case w.bad > 0:
-		return fmt.Sprintf("%d malformed frames in %v", w.bad, w.dur.Round(time.Millisecond))
+		return fmt.Sprintf("malformed frames (%d in %v)", w.bad, w.dur.Round(time.Millisecond))
 	case newErrs > 0:
-		return fmt.Sprintf("%d CAN error frames in %v, the latest: %s", newErrs, w.dur.Round(time.Millisecond), DescribeErrorFrame(dec.lastErr))
+		return fmt.Sprintf("CAN error frames: %s (%d in %v)", DescribeErrorFrame(dec.lastErr), newErrs, w.dur.Round(time.Millisecond))
 	}
 	return ""
 }
