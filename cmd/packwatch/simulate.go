@@ -59,7 +59,7 @@ func simulateCtx(ctx context.Context, args []string, stdout, stderr io.Writer) i
 	scenario := fs.String("scenario", "", "scenario `NAME` (generic, buoy-winch) or FILE (default: generic)")
 	var faults listFlag
 	fs.Var(&faults, "fault", "put a `FAULT` into the data (repeatable)")
-	rate := fs.Float64("rate", 0, "send `N` messages per second of wall time, repeating the story's frames (load tests)")
+	rate := fs.Float64("rate", 0, "send `N` messages per second of wall time, repeating the story's frames, for load tests (--speed is then ignored; --for counts sending time)")
 	seed := fs.Uint64("seed", 1, "seed for the cells' spread and garbage bytes; the same seed gives the same data")
 	startS := fs.String("start", "", "data time of the start, RFC 3339 (default: now)")
 	srcName := fs.String("source", "", "the profile's source `NAME` whose data goes to a device target (default: the first of the target's kind)")
