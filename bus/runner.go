@@ -58,8 +58,7 @@ func newRunner(spec Spec, a adapter) *runner { return &runner{spec: spec, a: a} 
 func (r *runner) Stats() Stats {
 	r.mu.Lock()
 	defer r.mu.Unlock()
-	st := r.stats
-	return st
+	return r.stats
 }
 
 // idlePoll is how often a link wakes up with no data to run diagnostics.

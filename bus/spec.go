@@ -66,6 +66,13 @@ type Spec struct {
 // to sink until ctx is cancelled, reconnecting by itself when the device goes
 // away; it returns nil on cancel, and no goroutine of it remains after it
 // returns. Run must be called at most once.
+//
+// The contract every source keeps (checked by package bustest): statuses
+// start with StateConnecting, StateConnected comes before any message,
+// StateDisconnected carries the reason when the device is lost, StateStopped
+// comes last and once; messages arrive in order with non-decreasing T; after
+// a reconnect, a suspend or a clock step a KindGap message precedes the next
+// data.
 type Source interface {
 	Run(ctx context.Context, sink Sink) error
 }
