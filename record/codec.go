@@ -322,13 +322,18 @@ func (d *blockDecoder) decode(b []byte, dst []bus.Message) ([]bus.Message, error
 	t := base
 	for i := range out {
 		var tag, dt uint64
-		tag, p, ok = uvarintAt(body, p)
-		if !ok {
-			return dst[:start], corrupt("truncated at message %d", i)
-		}
-		dt, p, ok = uvarintAt(body, p)
-		if !ok {
-			return dst[:start], corrupt("truncated at message %d", i)
+		if p+1 < len(body) && body[p]|body[p+1] < 0x80 { // one byte each: the common case
+			tag, dt = uint64(body[p]), uint64(body[p+1])
+			p += 2
+		} else {
+			tag, p, ok = uvarintAt(body, p)
+			if !ok {
+				return dst[:start], corrupt("truncated at message %d", i)
+			}
+			dt, p, ok = uvarintAt(body, p)
+			if !ok {
+				return dst[:start], corrupt("truncated at message %d", i)
+			}
 		}
 		si := tag >> 1
 		if si >= uint64(len(d.slots)) {

@@ -477,3 +477,25 @@ func TestCheckFindsDamage(t *testing.T) {
 		t.Errorf("Scan: %v", err)
 	}
 }
+
+// TestBusy: a second writer is refused while the first records; a reader
+// opens the file meanwhile without noting a recovery.
+func TestBusy(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "s.db")
+	w, err := Create(path, testMeta, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer w.Close()
+	if _, err := Create(path, testMeta, Options{Append: true}); !errors.Is(err, ErrBusy) {
+		t.Fatalf("second writer: %v, want ErrBusy", err)
+	}
+	r, err := Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer r.Close()
+	if r.Recovered() != nil {
+		t.Error("recovery noted for a file being written")
+	}
+}
