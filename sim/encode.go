@@ -1,6 +1,7 @@
 package sim
 
 import (
+	"encoding/binary"
 	"fmt"
 	"math"
 	"strconv"
@@ -35,11 +36,12 @@ type encField struct {
 	slot   int
 	lo, hi float64 // raw bounds at the field's width
 	mask   uint64
+	shift  uint // left shift into the word loaded in the field's byte order
 }
 
 func newEncField(f *config.CANField, slot int) encField {
 	bits := f.Layout.Bits
-	ef := encField{f: f, slot: slot, mask: math.MaxUint64}
+	ef := encField{f: f, slot: slot, mask: math.MaxUint64, shift: f.Layout.Shift()}
 	if bits < 64 {
 		ef.mask = 1<<uint(bits) - 1
 	}
@@ -53,6 +55,7 @@ func newEncField(f *config.CANField, slot int) encField {
 
 // frameMsg is one message of a frame entry: one ID and one mux value.
 type frameMsg struct {
+	muxLE  uint64 // the mux selector's bits, in the little-endian word
 	src    uint16
 	id     uint32
 	ext    bool
@@ -129,8 +132,14 @@ func NewEncoder(m *decode.Map) (*Encoder, error) {
 		if !ok {
 			at = [2]int{fi, len(fs.msgs)}
 			msgAt[k] = at
-			fs.msgs = append(fs.msgs, frameMsg{src: uint16(f.Src), id: f.ID, ext: f.Extended,
-				hasMux: f.HasMux, mux: f.Mux, muxL: f.MuxLayout, length: 8})
+			fm := frameMsg{src: uint16(f.Src), id: f.ID, ext: f.Extended,
+				hasMux: f.HasMux, mux: f.Mux, muxL: f.MuxLayout, length: 8}
+			if f.HasMux {
+				var d [8]byte
+				decode.Insert(&d, f.MuxLayout, uint64(f.Mux))
+				fm.muxLE = binary.LittleEndian.Uint64(d[:])
+			}
+			fs.msgs = append(fs.msgs, fm)
 		}
 		slot, ok := m.SlotIndex(f.Name)
 		if !ok {
@@ -247,14 +256,26 @@ type readingSource interface {
 }
 
 // frame builds frame message fm from the readings.
+//
+// The fields of one message never share bits (the profile loader checks),
+// so each is ORed into a 64-bit word loaded in its own byte order, as
+// decode.Insert would write it, and the two words are merged at the end.
 func (e *Encoder) frame(fm *frameMsg, r readingSource) can.Frame {
-	var data [8]byte
-	if fm.hasMux {
-		decode.Insert(&data, fm.muxL, uint64(fm.mux))
-	}
+	le, be := fm.muxLE, uint64(0)
 	for i := range fm.fields {
 		ef := &fm.fields[i]
-		decode.Insert(&data, ef.f.Layout, ef.raw(r.reading(ef.slot)))
+		v := (ef.raw(r.reading(ef.slot)) & ef.mask) << ef.shift
+		if ef.f.Layout.Big {
+			be |= v
+		} else {
+			le |= v
+		}
+	}
+	var data, b [8]byte
+	binary.LittleEndian.PutUint64(data[:], le)
+	binary.BigEndian.PutUint64(b[:], be)
+	for i := range data {
+		data[i] |= b[i]
 	}
 	return can.Frame{ID: fm.id, IsExtended: fm.ext, Length: fm.length, Data: data}
 }
