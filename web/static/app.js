@@ -250,7 +250,6 @@
       b.className = "btn packtab st-" + p.state + (i === state.packIdx ? " sel" : "");
       b.setAttribute("aria-pressed", i === state.packIdx ? "true" : "false");
     });
-    nav.hidden = s.packs.length < 2 && false;
   }
 
   // ---------- cells ----------
