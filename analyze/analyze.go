@@ -196,11 +196,7 @@ func Analyze(s *Session, opt Options) *Report {
 		}
 	}
 	rep.Warnings = append(rep.Warnings, rep.Imbalance.Flags...)
-	for _, p := range rep.Pulses {
-		for _, f := range p.Flags {
-			rep.Warnings = append(rep.Warnings, fmt.Sprintf("step at %.1f s: %s", float64(p.T), f))
-		}
-	}
+	rep.Warnings = append(rep.Warnings, stepFlagSummary(rep.Pulses)...)
 	if rep.Pulses == nil {
 		rep.Pulses = []Step{}
 	}
@@ -298,6 +294,35 @@ func SessionCurves(s *Session, opt Options) []Curve {
 	var out []Curve
 	for _, r := range runs {
 		out = append(out, RunCurves(s, ch, r, opt.StepAh, !opt.NoCellCurves)...)
+	}
+	return out
+}
+
+// stepFlagSummary turns the steps' flags into one note per cell or joint:
+// the first flag's words and how many of the steps raised it.
+func stepFlagSummary(steps []Step) []string {
+	type agg struct {
+		first string
+		n     int
+	}
+	var order []string
+	byKey := map[string]*agg{}
+	for _, p := range steps {
+		for _, f := range p.Flags {
+			key := reasonKind(f)
+			a := byKey[key]
+			if a == nil {
+				a = &agg{first: fmt.Sprintf("%s (first at %.1f s)", f, float64(p.T))}
+				byKey[key] = a
+				order = append(order, key)
+			}
+			a.n++
+		}
+	}
+	var out []string
+	for _, k := range order {
+		a := byKey[k]
+		out = append(out, fmt.Sprintf("resistance: %s; at %d of %d steps", a.first, a.n, len(steps)))
 	}
 	return out
 }

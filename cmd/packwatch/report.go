@@ -122,7 +122,12 @@ func summary(w io.Writer, r *analyze.Report) {
 	}
 	fmt.Fprintf(w, "resistance: %d steps measured, %d not used; bursts: %d; ICA peaks: %d; pre-charges: %d\n",
 		len(r.Pulses), len(r.Rejected), len(r.Bursts), len(r.ICAPeaks), len(r.Precharge))
-	for _, p := range r.Pulses {
+	const listed = 8
+	for k, p := range r.Pulses {
+		if k == listed {
+			fmt.Fprintf(w, "  … %d more steps (see --json or -o FILE.html)\n", len(r.Pulses)-listed)
+			break
+		}
 		fmt.Fprintf(w, "  step at %s s, ΔI %s A: R0 %s mΩ, 1 s %s, 10 s %s (%s)\n", n(p.T, 1), n(p.DeltaA, 1), n(p.R0, 2), n(p.R1s, 2), n(p.R10s, 2), p.Method)
 	}
 	for _, s := range r.Warnings {
