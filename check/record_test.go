@@ -2,11 +2,14 @@ package check
 
 import (
 	"context"
+	"crypto/sha256"
+	"encoding/hex"
 	"database/sql"
 	"errors"
 	"math"
 	"path/filepath"
 	"strings"
+	"sync"
 	"testing"
 	"time"
 
@@ -220,5 +223,63 @@ func TestNoticeAndSimulatedCapture(t *testing.T) {
 		Data: DataInfo{Mode: ModeCapture, Simulated: true}})
 	if !strings.HasPrefix(r.Data.Notice, "FROM A CAPTURE, NOT LIVE, SIMULATED DATA") {
 		t.Errorf("notice %q", r.Data.Notice)
+	}
+}
+
+// Two handles on one history file (two packwatch processes) saving at once
+// keep one unbroken chain: each save reads the head inside its transaction.
+func TestHistoryConcurrentSaves(t *testing.T) {
+	ctx := context.Background()
+	path := filepath.Join(t.TempDir(), "checks.db")
+	var hs [2]*History
+	for i := range hs {
+		h, err := OpenHistory(path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		defer h.Close()
+		hs[i] = h
+	}
+	var wg sync.WaitGroup
+	errs := make(chan error, 16)
+	for i := 0; i < 16; i++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			errs <- hs[i%2].Save(ctx, testRecord(t, nil, time.Unix(0, t0).Add(time.Duration(i)*time.Minute)))
+		}()
+	}
+	wg.Wait()
+	close(errs)
+	for err := range errs {
+		if err != nil {
+			t.Fatal(err)
+		}
+	}
+	n, _, probs, err := hs[0].Verify(ctx)
+	if err != nil || n != 16 || len(probs) != 0 {
+		t.Fatalf("%d records, problems %+v, %v", n, probs, err)
+	}
+}
+
+// The stored compact JSON is the canonical form plus the hash key at its
+// end: stripping `,"hash":"…"` gives the bytes the hash is taken over, so
+// a record can be checked without packwatch (schema.json says so).
+func TestHashOfStoredJSON(t *testing.T) {
+	r := testRecord(t, nil, time.Unix(0, t0))
+	h, _ := r.ComputeHash()
+	r.Hash = h
+	b, err := jsonOf(r)
+	if err != nil {
+		t.Fatal(err)
+	}
+	suffix := `,"hash":"` + h + `"}`
+	if !strings.HasSuffix(string(b), suffix) {
+		t.Fatalf("stored JSON does not end with the hash: %s", b[len(b)-90:])
+	}
+	canon := strings.TrimSuffix(string(b), suffix) + "}"
+	sum := sha256.Sum256([]byte(canon))
+	if hex.EncodeToString(sum[:]) != h {
+		t.Fatal("the hash is not the SHA-256 of the JSON without its hash key")
 	}
 }
