@@ -227,20 +227,31 @@ func (p *Replay) span() (first, last int64, ok bool, err error) {
 }
 
 // Run delivers the recording to sink until its end (or, with Hold, until ctx
-// ends), returning nil at the end and ctx.Err() when cancelled. It reports
-// every recorded source connected at the start and stopped at the end. It
-// starts no goroutine.
+// ends). It returns nil at the end and on cancel, like every bus source, and
+// an error only when the recording cannot be read. Each recorded source
+// reports connecting and connected at the start and stopped once at the end.
+// It starts no goroutine.
 func (p *Replay) Run(ctx context.Context, sink bus.Sink) error {
+	err := p.run(ctx, sink)
+	if ctx.Err() != nil {
+		return nil
+	}
+	return err
+}
+
+func (p *Replay) run(ctx context.Context, sink bus.Sink) error {
 	first, _, ok, err := p.span()
 	if err != nil {
 		return err
 	}
 	srcs := p.r.Meta().Sources
-	for _, s := range srcs {
-		sink.Status(bus.Status{Src: s.Index, T: first, State: bus.StateConnected, Reason: "replay of " + p.r.Path()})
+	for _, st := range []bus.State{bus.StateConnecting, bus.StateConnected} {
+		for _, s := range srcs {
+			sink.Status(bus.Status{Src: s.Index, T: first, State: st, Reason: "replay of " + p.r.Path()})
+		}
 	}
 	defer func() {
-		t := p.Position()
+		t := max(p.Position(), first)
 		for _, s := range srcs {
 			sink.Status(bus.Status{Src: s.Index, T: t, State: bus.StateStopped, Reason: "end of replay"})
 		}
