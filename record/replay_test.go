@@ -241,7 +241,7 @@ func TestReplayPacing(t *testing.T) {
 			t.Fatal(err)
 		}
 		h.done <- nil // for the cleanup
-	case <-time.After(10 * time.Second):
+	case <-time.After(60 * time.Second): // a failure guard for a hang
 		t.Fatal("Run did not return at the end")
 	}
 	got = frames(h.sink.take())
