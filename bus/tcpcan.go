@@ -159,7 +159,8 @@ func (s *TCPCANServer) Clients() int {
 }
 
 // WriteFrames sends frames to every client; a client whose write fails is
-// dropped. It returns the number of clients written to.
+// dropped. It returns the number of clients written to. It blocks while a
+// client's socket buffer is full, as a gateway pacing a slow reader would.
 func (s *TCPCANServer) WriteFrames(fs []can.Frame) int {
 	s.mu.Lock()
 	defer s.mu.Unlock()
