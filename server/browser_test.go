@@ -198,6 +198,18 @@ func TestBrowserEndToEnd(t *testing.T) {
 		t.Fatal(err)
 	}
 
+	// A pack with nothing known (null lists and numbers) still renders: the
+	// page sets data-seq only after a whole render, so a seq that keeps
+	// advancing means no renderer threw.
+	eng.mu.Lock()
+	eng.empty = true
+	emptyFrom := eng.seq + 1
+	eng.mu.Unlock()
+	waitJS(t, ctx, "an empty pack rendered", fmt.Sprintf(`Number(document.documentElement.dataset.seq) > %d && document.getElementById('soc-pct').textContent.startsWith('--') && document.querySelectorAll('#cell-bars .cell').length === 0`, emptyFrom+2), 30*time.Second)
+	eng.mu.Lock()
+	eng.empty = false
+	eng.mu.Unlock()
+
 	// Demo data is watermarked wherever values show.
 	eng.mu.Lock()
 	eng.mode = "simulated"

@@ -32,6 +32,8 @@ type fakeEngine struct {
 	// and mainOn the main contactor, instead of the built-in ramp.
 	preRatio float64
 	mainOn   bool
+	// empty sends a pack with no readings at all: nil lists and numbers.
+	empty bool
 }
 
 func (f *fakeEngine) setPrecharge(ratio float64, mainOn bool) {
@@ -63,6 +65,11 @@ func (f *fakeEngine) Snapshot(now time.Time) *pack.Snapshot {
 	}
 	f.seq++
 	f.dataT += 0.1
+	if f.empty {
+		f.last = &pack.Snapshot{Seq: f.seq, ServerTime: now.UTC().Format(time.RFC3339Nano), DataT: pack.Num(f.dataT), Mode: f.mode,
+			Packs: []pack.PackSnapshot{{ID: "a", Name: "Empty pack", State: "nodata"}}}
+		return f.last
+	}
 	k := float64(f.seq)
 	lo, hi, warn := 3.0, 4.15, 0.05
 	p := pack.PackSnapshot{

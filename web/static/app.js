@@ -178,8 +178,19 @@
   });
 
   // ---------- snapshot ----------
+  // normalize fills the lists and objects a snapshot may carry as null
+  // (Go marshals an empty slice as null), so the renderers need no checks.
+  function normalize(s) {
+    s.packs = s.packs || [];
+    s.packs.forEach(function (p) {
+      ["cells", "temps", "margins", "alarms", "values", "sources"].forEach(function (k) { p[k] = p[k] || []; });
+      ["cell_stats", "temp_stats", "soc", "limits", "decode"].forEach(function (k) { p[k] = p[k] || {}; });
+    });
+    return s;
+  }
+
   function onSnapshot(s) {
-    state.snap = s;
+    state.snap = normalize(s);
     state.lastAt = performance.now();
     state.everLive = true;
     pushHistory(s);
@@ -255,6 +266,11 @@
   // ---------- cells ----------
   function renderCells(p) {
     var L = p.limits, lo = L.cell_low_v, hi = L.cell_high_v, warn = L.warn_cell_v || 0;
+    if (!(isNum(lo) && isNum(hi) && hi > lo)) { // no usable limits: scale to the cells seen
+      lo = isNum(p.cell_stats.min_v) ? p.cell_stats.min_v - 0.1 : 0;
+      hi = isNum(p.cell_stats.max_v) ? p.cell_stats.max_v + 0.1 : 5;
+      warn = 0;
+    }
     var span = hi - lo;
     var pos = function (v) { return Math.max(0, Math.min(100, (v - lo) / span * 100)); };
     var box = $("cell-bars");
