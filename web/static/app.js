@@ -705,6 +705,7 @@
       var facts = [];
       if (s.state) facts.push(s.state + (s.reason ? ": " + s.reason : ""));
       if (isNum(s.load_pct)) facts.push("bus load " + s.load_pct.toFixed(1) + "\u2009%" + (s.bitrate ? " of " + (s.bitrate / 1000) + "\u2009kbit/s" : ""));
+      else if ((s.ids || []).length) facts.push("bus load unknown: give the source its bitrate in the profile");
       if (isNum(s.rate_hz)) facts.push(s.rate_hz.toFixed(0) + " msg/s");
       if (s.unknown) facts.push(s.unknown + " unknown");
       if (s.decode_errors) facts.push(s.decode_errors + " decode errors");
