@@ -113,6 +113,7 @@ func Analyze(s *Session, opt Options) *Report {
 	if s.Current.Empty() {
 		rep.Warnings = append(rep.Warnings, "no pack.current readings: nothing to segment")
 		rep.Imbalance = CellImbalance(s)
+		emptyLists(rep)
 		return rep
 	}
 	if s.Pack.CapacityAh <= 0 {
@@ -197,10 +198,40 @@ func Analyze(s *Session, opt Options) *Report {
 	}
 	rep.Warnings = append(rep.Warnings, rep.Imbalance.Flags...)
 	rep.Warnings = append(rep.Warnings, stepFlagSummary(rep.Pulses)...)
+	emptyLists(rep)
+	return rep
+}
+
+// emptyLists makes every list of the report an empty JSON array rather than
+// null, so that readers can iterate without a check.
+func emptyLists(rep *Report) {
 	if rep.Pulses == nil {
 		rep.Pulses = []Step{}
 	}
-	return rep
+	if rep.Rejected == nil {
+		rep.Rejected = []Rejected{}
+	}
+	if rep.Bursts == nil {
+		rep.Bursts = []Burst{}
+	}
+	if rep.ICA == nil {
+		rep.ICA = []ICA{}
+	}
+	if rep.ICAPeaks == nil {
+		rep.ICAPeaks = []ICAPeak{}
+	}
+	if rep.Precharge == nil {
+		rep.Precharge = []Precharge{}
+	}
+	if rep.Segments == nil {
+		rep.Segments = []Segment{}
+	}
+	if rep.Runs == nil {
+		rep.Runs = []Run{}
+	}
+	if rep.Curves == nil {
+		rep.Curves = []Curve{}
+	}
 }
 
 // reasonKind shortens a rejection reason to its first words for counting.

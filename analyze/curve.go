@@ -22,6 +22,9 @@ type Curve struct {
 	StepAh   float64   `json:"step_ah"`
 	Q        []float64 `json:"ah"` // charge moved since the run's start, Ah
 	V        []float64 `json:"v"`
+	// SteadyOnly: the run's current varied, and the curve keeps only the
+	// readings at its usual current (MeanA), 30 s after any other.
+	SteadyOnly bool `json:"steady_only,omitempty"`
 	// Source names the file the curve came from when several are compared.
 	Source string `json:"source,omitempty"`
 }
@@ -154,10 +157,26 @@ func RunCurves(s *Session, ch *Charge, r Run, step float64, cells bool) []Curve 
 	if s.Pack.CapacityAh > 0 {
 		base.CRate = Num(math.Abs(r.MeanA) / s.Pack.CapacityAh)
 	}
+	// a run whose current varies (bursts on a draw) is drawn from the
+	// readings at its usual current only, labelled with that current
+	ci, cj := s.Current.Window(r.ccFrom, r.ccTo+1e-9)
+	steady := cj-ci < 2 || steadyCurrent(s.Current.V[ci:cj], 0.1, 0.9)
+	level := 0.0
+	if !steady {
+		level = median(s.Current.V[ci:cj])
+		base.SteadyOnly, base.MeanA = true, level
+		if s.Pack.CapacityAh > 0 {
+			base.CRate = Num(math.Abs(level) / s.Pack.CapacityAh)
+		}
+	}
 	var out []Curve
 	add := func(cell int, tr *Trace, label string) {
 		a, b := tr.Window(r.From, r.To+1e-9)
-		q, v := ResampleByCharge(ts, moved, tr.T[a:b], tr.V[a:b], step)
+		vt, vv := tr.T[a:b], tr.V[a:b]
+		if !steady {
+			vt, vv = steadyReadings(s, tr, r.From, r.To, r.ccFrom, level, 30)
+		}
+		q, v := ResampleByCharge(ts, moved, vt, vv, step)
 		if len(q) == 0 {
 			return
 		}

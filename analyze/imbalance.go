@@ -29,7 +29,7 @@ type CellDrift struct {
 
 // CellImbalance samples every cell at up to 500 regular times.
 func CellImbalance(s *Session) Imbalance {
-	var out Imbalance
+	out := Imbalance{T: []Num{}, SpreadV: []Num{}, Cells: []CellDrift{}}
 	out.MaxSpread, out.MaxAt = none, none
 	nc := len(s.Cells)
 	if nc < 2 {

@@ -44,8 +44,10 @@ func PlotCurves(w io.Writer, curves []Curve, title, format string, width, height
 		p.Add(l)
 		p.Legend.Add(curveTitle(c), l)
 	}
-	p.Legend.Top = false
-	p.Legend.Left = true
+	// the legend goes where the curves are not: top right for a
+	// discharge (falling from the left), bottom right for a charge
+	p.Legend.Top = len(curves) > 0 && curves[0].Kind == Discharge
+	p.Legend.Left = false
 	return save(p, w, format, width, height)
 }
 
@@ -61,6 +63,9 @@ func curveTitle(c Curve) string {
 	}
 	if c.MeanTemp.Valid() {
 		s += fmt.Sprintf(" %.0f °C", float64(c.MeanTemp))
+	}
+	if c.SteadyOnly {
+		s += " (steady parts)"
 	}
 	return s
 }
