@@ -163,9 +163,16 @@
       if (state.charts) Object.keys(state.charts).forEach(function (k) { state.charts[k] && state.charts[k].destroy(); });
       state.charts = makeCharts();
       state.chartKey = key;
+      state.chartAt = 0; // draw the new charts at once
     }
     var h = state.hist[p.id];
     if (!state.charts || !h) return;
+    // Charts redraw at most twice a second: ten full redraws a second of
+    // thousands of points would cost a phone more than the rest of the page.
+    var now = performance.now();
+    if (state.chartAt && now - state.chartAt < 500 && state.chartDrawnKey === key) return;
+    state.chartAt = now;
+    state.chartDrawnKey = key;
     state.charts.v.setData([h.t, h.v]);
     state.charts.i.setData([h.t, h.i]);
     state.charts.c.setData([h.t, h.cmin, h.cmax]);
