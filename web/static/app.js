@@ -403,19 +403,25 @@
     ch.hidden = !cv && !ci;
     if (!ch.hidden) {
       var rows = [];
-      if (cv) rows.push(["Voltage", cv.value, p.voltage_v, "V", 2]);
-      if (ci) rows.push(["Current", ci.value, p.current_a, "A", 1]);
+      if (cv) rows.push(["Voltage", cv.value, p.voltage_v, "V", 2, cv]);
+      if (ci) rows.push(["Current", ci.value, p.current_a, "A", 1, ci]);
       var tb = $("charger-rows");
       tb.textContent = "";
       rows.forEach(function (r) {
         var tr = el("tr");
         tr.appendChild(el("th", "", r[0]));
-        tr.appendChild(el("td", "", fmt(r[1], r[4], r[3])));
+        tr.appendChild(el("td", "", fmt(r[1], r[4], r[3]) + staleNote(r[5])));
+        if (r[5].state && r[5].state !== "ok") tr.className = "st-stale";
         tr.appendChild(el("td", "", fmt(r[2], r[4], r[3])));
         tr.appendChild(el("td", "", isNum(r[1]) && isNum(r[2]) ? signed(r[1] - r[2], r[4], r[3]) : "--"));
         tb.appendChild(tr);
       });
     }
+  }
+  // staleNote is " (stale 12 s)" for a value that is not fresh, else "".
+  function staleNote(v) {
+    if (!v || !v.state || v.state === "ok") return "";
+    return " (" + (v.state === "stale" ? "stale " + dur(v.age_s) : STATE_WORD[v.state] || v.state) + ")";
   }
   function val(p, bind) {
     var vs = p.values || [];
@@ -464,7 +470,7 @@
     setText("pre-pct", pct === null ? "--" : pct.toFixed(0) + "\u2009%");
     $("pre-fill").style.width = (pct === null ? 0 : Math.max(0, Math.min(100, pct))) + "%";
     $("pre-fill").className = "pre-fill" + (pct !== null && pct < 90 ? " low" : "");
-    var words = "Load side " + fmt(link.value, 1, "V") + " of pack " + fmt(p.voltage_v, 1, "V");
+    var words = "Load side " + fmt(link.value, 1, "V") + staleNote(link) + " of pack " + fmt(p.voltage_v, 1, "V");
     if (preOn !== null) words += "; pre-charge " + (preOn ? "closed" : "open");
     if (mainOn !== null) words += "; main " + (mainOn ? "closed" : "open");
     setText("pre-text", words);
