@@ -87,6 +87,9 @@ type pendingRun struct {
 	made    time.Time
 }
 
+// safeWindow is the longest window when the write deadline cannot be lifted.
+const safeWindow = 20 * time.Second
+
 // pendingTTL is how long an unsaved result waits for its save.
 const pendingTTL = time.Hour
 
@@ -219,6 +222,13 @@ func (h *Handler) run(w http.ResponseWriter, r *http.Request) {
 	}
 	if d < time.Second || d > h.opt.MaxWindow {
 		fail(w, http.StatusBadRequest, "seconds must be from 1 to %.0f", h.opt.MaxWindow.Seconds())
+		return
+	}
+	// The answer comes after the window: lift the server's write deadline
+	// for this request. Where the writer cannot, stay well inside the
+	// usual 30 s.
+	if err := http.NewResponseController(w).SetWriteDeadline(time.Now().Add(d + 30*time.Second)); err != nil && d > safeWindow {
+		fail(w, http.StatusBadRequest, "seconds must be at most %.0f on this server", safeWindow.Seconds())
 		return
 	}
 	h.mu.Lock()

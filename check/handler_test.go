@@ -205,6 +205,8 @@ func TestHandlerRunSaveList(t *testing.T) {
 		{"POST", "/api/check/run", `{"pack":"pod"}`, "text/plain", 415},
 		{"POST", "/api/check/run", `{"pack":"nope"}`, "application/json", 404},
 		{"POST", "/api/check/run", `{"pack":"pod","seconds":500}`, "application/json", 400},
+		// a recorder cannot lift the write deadline: at most 20 s
+		{"POST", "/api/check/run", `{"pack":"pod","seconds":25}`, "application/json", 400},
 		{"POST", "/api/check/run", `{"pack":"pod","extra":1}`, "application/json", 400},
 		{"GET", "/api/check/results/zz", "", "", 404},
 		{"GET", "/api/check/results/0123456789abcdef", "", "", 404},
