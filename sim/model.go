@@ -5,6 +5,10 @@ import "math"
 // Model is the simulated pack: cells in series carrying one current, and
 // temperature sensors as thermal nodes. It knows no time of day, frames or
 // scenario; Step moves it forward. Not safe for concurrent use.
+//
+// The cells' terminal voltages at the latest step's current are computed
+// once and cached; code that changes a cell between steps (SetSOC, its
+// resistances) calls Invalidate before asking for voltages again.
 type Model struct {
 	Cells   []Cell
 	Sensors []SensorNode
