@@ -34,15 +34,26 @@ func NewCollector(m *decode.Map) *Collector {
 			s.Pack.SensorRoles[sn.N-1] = sn.Role
 		}
 	}
-	c := &Collector{m: m, v: decode.NewValues(m), s: s}
+	c := &Collector{s: s}
+	c.Use(m)
+	return c
+}
+
+// Use switches to another compiled version of the same pack's profile (a
+// recording stores every version with the data time it took effect): the
+// messages added from now on decode through m, into the same traces. A
+// version with another cell or sensor count keeps only the positions both
+// have.
+func (c *Collector) Use(m *decode.Map) {
+	c.m = m
+	c.v = decode.NewValues(m)
 	slots := m.Slots()
 	c.dst = make([]*Trace, len(slots))
 	c.flag = make([]bool, len(slots))
 	for i, sl := range slots {
-		c.dst[i] = s.traceFor(sl.Bind)
+		c.dst[i] = c.s.traceFor(sl.Bind)
 		c.flag[i] = sl.Bind.Bool()
 	}
-	return c
 }
 
 // traceFor maps a binding to the trace that keeps it.

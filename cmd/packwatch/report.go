@@ -178,16 +178,19 @@ func loadRecording(ctx context.Context, path, profile string, stderr io.Writer) 
 		return nil, err
 	}
 	defer r.Close()
-	var m *decode.Map
+	// the profile: --profile for the whole recording, else each stored
+	// version from the data time it took effect
+	var versions []profileAt
 	if profile != "" {
-		_, m, err = loadProfile(profile, stderr)
-	} else {
-		m, err = recordedProfile(r, stderr)
-	}
-	if err != nil {
+		_, m, err := loadProfile(profile, stderr)
+		if err != nil {
+			return nil, err
+		}
+		versions = []profileAt{{m: m}}
+	} else if versions, err = recordedProfiles(r); err != nil {
 		return nil, err
 	}
-	c := analyze.NewCollector(m)
+	c := analyze.NewCollector(versions[0].m)
 	first, last, ok, err := r.Span()
 	if err != nil {
 		return nil, err
@@ -200,28 +203,49 @@ func loadRecording(ctx context.Context, path, profile string, stderr io.Writer) 
 		return nil, err
 	}
 	bar := newLoadBar(stderr, "reading "+filepath.Base(path))
+	defer bar.done()
 	grown := false
-	err = r.Scan(ctx, first, last+1, func(batch []bus.Message) error {
-		c.Add(batch)
-		if !grown && c.Messages() > 10000 {
-			c.Grow(int(total) - c.Messages())
-			grown = true
+	c.SetStart(first)
+	for k, v := range versions {
+		from, to := first, last+1
+		if k > 0 {
+			from = v.t
+			c.Use(v.m)
 		}
-		if last > first {
-			bar.set(float64(batch[len(batch)-1].T-first) / float64(last-first))
+		if k+1 < len(versions) {
+			to = versions[k+1].t
 		}
-		return nil
-	})
-	bar.done()
-	if err != nil {
-		return nil, err
+		if to <= from {
+			continue
+		}
+		err = r.Scan(ctx, from, to, func(batch []bus.Message) error {
+			c.Add(batch)
+			if !grown && c.Messages() > 10000 {
+				c.Grow(int(total) - c.Messages())
+				grown = true
+			}
+			if last > first {
+				bar.set(float64(batch[len(batch)-1].T-first) / float64(last-first))
+			}
+			return nil
+		})
+		if err != nil {
+			return nil, err
+		}
 	}
 	return c.Session(), nil
 }
 
-// recordedProfile compiles the profile stored in a recording: the last
-// version, with a note when there are several.
-func recordedProfile(r *record.Reader, stderr io.Writer) (*decode.Map, error) {
+// profileAt is a compiled profile version and the data time (ns) it took
+// effect.
+type profileAt struct {
+	t int64
+	m *decode.Map
+}
+
+// recordedProfiles compiles every profile version stored in a recording,
+// in the order they took effect.
+func recordedProfiles(r *record.Reader) ([]profileAt, error) {
 	vs, err := r.Profiles()
 	if err != nil {
 		return nil, err
@@ -229,15 +253,19 @@ func recordedProfile(r *record.Reader, stderr io.Writer) (*decode.Map, error) {
 	if len(vs) == 0 {
 		return nil, usagef("%s stores no profile: give --profile FILE", r.Path())
 	}
-	v := vs[len(vs)-1]
-	if len(vs) > 1 {
-		fmt.Fprintf(stderr, "%s holds %d profile versions; decoding with the last (%s); give --profile FILE for another\n", r.Path(), len(vs), v.Name)
+	out := make([]profileAt, 0, len(vs))
+	for _, v := range vs {
+		p, err := config.Parse(v.Name, []byte(v.Text))
+		if err != nil {
+			return nil, fmt.Errorf("the profile %s stored in %s: %w", v.Name, r.Path(), err)
+		}
+		m, err := decode.Compile(p)
+		if err != nil {
+			return nil, fmt.Errorf("the profile %s stored in %s: %w", v.Name, r.Path(), err)
+		}
+		out = append(out, profileAt{t: v.T, m: m})
 	}
-	p, err := config.Parse(v.Name, []byte(v.Text))
-	if err != nil {
-		return nil, fmt.Errorf("the profile stored in %s: %w", r.Path(), err)
-	}
-	return decode.Compile(p)
+	return out, nil
 }
 
 func loadCapture(ctx context.Context, path, profile string, stderr io.Writer) (*analyze.Session, error) {

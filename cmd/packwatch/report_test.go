@@ -48,7 +48,11 @@ func writeSynthCapture(t *testing.T) string {
 	return path
 }
 
-func writeSynthRecording(t *testing.T) string {
+func writeSynthRecording(t *testing.T) string { return writeSynthRecordingV(t, "") }
+
+// writeSynthRecordingV records the session; a non-empty later profile text
+// is stored as a second version taking effect 10 s before the end.
+func writeSynthRecordingV(t *testing.T, later string) string {
 	t.Helper()
 	msgs, start := synthMessages(t)
 	text, err := os.ReadFile(analyzeProfile)
@@ -62,6 +66,9 @@ func writeSynthRecording(t *testing.T) string {
 		t.Fatal(err)
 	}
 	w.Profile(start, "string4.toml", string(text), "")
+	if later != "" {
+		w.Profile(msgs[len(msgs)-1].T-10e9, "string4-later.toml", later, "")
+	}
 	for i := 0; i < len(msgs); i += 1000 {
 		w.Write(msgs[i:min(i+1000, len(msgs))])
 	}
@@ -213,5 +220,36 @@ func TestParseStep(t *testing.T) {
 		if _, err := parseStep(in); err == nil {
 			t.Errorf("parseStep(%q) accepted", in)
 		}
+	}
+}
+
+// TestReportProfileVersions: each profile version stored in a recording
+// decodes the messages from the data time it took effect. The later version
+// here doubles the current's scale for the last 10 s only; the pulse near
+// the start must still give the model's 8 mΩ, not half of it.
+func TestReportProfileVersions(t *testing.T) {
+	text, err := os.ReadFile(analyzeProfile)
+	if err != nil {
+		t.Fatal(err)
+	}
+	later := strings.Replace(string(text), "  signed = true\n  scale = 0.001", "  signed = true\n  scale = 0.002", 1)
+	if later == string(text) {
+		t.Fatal("test profile changed: no current scale to alter")
+	}
+	rec := writeSynthRecordingV(t, later)
+	var out, errb bytes.Buffer
+	if code := runReport(context.Background(), []string{rec, "--json"}, &out, &errb); code != exitOK {
+		t.Fatalf("exit %d: %s", code, errb.String())
+	}
+	var m struct {
+		Pulses []struct {
+			R0 float64 `json:"r0_mohm"`
+		} `json:"pulses"`
+	}
+	if err := json.Unmarshal(out.Bytes(), &m); err != nil || len(m.Pulses) == 0 {
+		t.Fatalf("%v, %d pulses", err, len(m.Pulses))
+	}
+	if r0 := m.Pulses[0].R0; r0 < 0.95*8 || r0 > 1.05*8 {
+		t.Errorf("first pulse R0 %.3f mΩ, model 8 mΩ: decoded with the wrong profile version", r0)
 	}
 }
