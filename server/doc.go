@@ -17,9 +17,16 @@
 //	snapshot  every tick: the pack.Snapshot
 //	bus       1–2 Hz, only to clients that sent {"type":"subscribe","bus":true}
 //
+// Routes: / (the page), /static/ (embedded assets), /ws, GET /api/state,
+// /api/profile, /api/bus, /healthz, POST /api/packs/{pack}/alarms/{id}/ack,
+// POST /api/replay/{pause,play,seek,speed} when a Replay is set, and any
+// Options.Handlers (e.g. /metrics, /api/check/*). Options.OnSnapshot sees
+// every snapshot the hub takes.
+//
 // Security: loopback by default; any other listen address requires a token
-// (128-bit random, constant-time compare, kept in a SameSite=Strict cookie
-// after the first visit). The Host header is checked on every request (DNS
-// rebinding), Origin on websockets and every POST. No route writes to a bus
-// or takes a file path from the client.
+// (128-bit random, constant-time compare; accepted as ?token=, a cookie or
+// an Authorization: Bearer header, and kept in an HttpOnly SameSite=Lax
+// cookie after the first visit). The Host header is checked on every request
+// (DNS rebinding), Origin on websockets and on every request that is not GET
+// or HEAD. No route writes to a bus or takes a file path from the client.
 package server
