@@ -161,6 +161,7 @@ section,table,figure{page-break-inside:avoid;break-inside:avoid}
 <td class="l">{{range .Cells}}{{if .Outlier}}<strong class="warn">{{.Cell}}: {{n .R0 2}}</strong>{{else}}{{.Cell}}: {{n .R0 2}}{{end}} {{end}}</td><td>{{n .InterconnectR0 2}}</td><td>{{n .SOCPct 0}}</td><td>{{n .TempC 1}}</td></tr>
 {{end}}</table>{{else}}<p>No usable current step.</p>{{end}}
 {{if .R.Rejected}}<p class="note">Steps not used: {{range .R.Rejected}}{{n .T 1}} s ({{.Reason}}); {{end}}</p>{{end}}
+{{if .R.RejectedCounts}}<p class="note">All steps not used, by reason: {{range $k, $v := .R.RejectedCounts}}{{$k}}: {{$v}}; {{end}}</p>{{end}}
 </section>
 
 <section><h2>Bursts</h2>
