@@ -52,17 +52,22 @@ func RunCapture(ctx context.Context, eng Engine, packID string, p *config.Profil
 	var from int64
 	if last > 0 {
 		cr := bus.NewCaptureReader(bytes.NewReader(data), resolve)
-		end, seen := int64(0), false
+		first, end, seen := int64(0), int64(0), false
 		for cr.Scan() {
-			if t := cr.Message().T; !seen || t > end {
-				end, seen = t, true
+			t := cr.Message().T
+			if !seen || t > end {
+				end = t
 			}
+			if !seen || t < first {
+				first = t
+			}
+			seen = true
 		}
 		if err := cr.Err(); err != nil {
 			return Window{}, Raw{}, info, fmt.Errorf("read capture %s: %w", path, err)
 		}
 		if seen {
-			from = end - int64(last)
+			from = clampFrom(&info, first, end, last)
 		}
 	}
 	col := NewCollector(eng, packID, names, from, 0)
@@ -134,7 +139,7 @@ func RunRecording(ctx context.Context, eng Engine, packID string, rec *record.Re
 	}
 	var from int64
 	if last > 0 {
-		from = end - int64(last)
+		from = clampFrom(&info, first, end, last)
 	}
 	col := NewCollector(eng, packID, names, from, 0)
 	err = rec.Scan(ctx, first, end+1, func(batch []bus.Message) error {
@@ -195,4 +200,16 @@ func RecordedChecks(rec *record.Reader) ([]EventRecord, error) {
 		out = append(out, er)
 	}
 	return out, nil
+}
+
+// clampFrom is the start of the last `last` of data ending at end, no
+// earlier than the data's first message; the source notes data shorter
+// than asked for.
+func clampFrom(info *DataInfo, first, end int64, last time.Duration) int64 {
+	from := end - int64(last)
+	if from < first {
+		info.Source += fmt.Sprintf(" (only %.1f s of data, less than the %s asked for)", float64(end-first)/1e9, last)
+		return first
+	}
+	return from
 }

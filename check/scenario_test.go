@@ -162,3 +162,23 @@ func TestSimulatedHealthyNeedsChecklist(t *testing.T) {
 		t.Fatalf("verdict %s failing %v", r.Verdict, failing(r))
 	}
 }
+
+// Asking for more than the capture holds checks what there is and says so.
+func TestCaptureShorterThanAsked(t *testing.T) {
+	p, m := loadPod(t)
+	path := simCapture(t, m, 20*time.Second)
+	eng := pack.NewEngine(pack.Options{})
+	if err := eng.AddPack("pod", m, nil); err != nil {
+		t.Fatal(err)
+	}
+	w, _, info, err := RunCapture(context.Background(), eng, "pod", p, path, time.Minute, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if w.Seconds() > 20 || w.Seconds() < 19 || !strings.Contains(info.Source, "less than the 1m0s asked for") {
+		t.Errorf("window %.1f s, source %q", w.Seconds(), info.Source)
+	}
+	if r := find(Evaluate(w, Resolve(p)), "rate.bms"); r.Status != Pass {
+		t.Errorf("rate over a clamped window: %+v", r)
+	}
+}
