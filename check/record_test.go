@@ -3,8 +3,8 @@ package check
 import (
 	"context"
 	"crypto/sha256"
-	"encoding/hex"
 	"database/sql"
+	"encoding/hex"
 	"errors"
 	"math"
 	"path/filepath"
