@@ -157,6 +157,12 @@ func TestBrowserEndToEnd(t *testing.T) {
 		t.Fatalf("click acknowledge: %v", err)
 	}
 	waitJS(t, ctx, "alarm shown acknowledged", `!!document.querySelector('#alarm-list li.lv-trip.acked')`, 30*time.Second)
+	// That click was the first touch: the sound is armed now, and can be muted.
+	waitJS(t, ctx, "sound armed", `document.getElementById('sound').textContent.startsWith('Sound on')`, 30*time.Second)
+	if err := chromedp.Do(ctx, chromedp.Click(chromedp.CSS(`#sound`))); err != nil {
+		t.Fatal(err)
+	}
+	waitJS(t, ctx, "sound muted", `document.getElementById('sound').textContent.startsWith('Sound muted')`, 30*time.Second)
 	eng.mu.Lock()
 	if !eng.acked[1] {
 		t.Error("engine did not record the acknowledgement")
