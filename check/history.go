@@ -71,11 +71,40 @@ func OpenHistory(path string) (*History, error) {
 		return nil, fmt.Errorf("open check history %s: %w", path, err)
 	}
 	db.SetMaxOpenConns(1)
-	if _, err := db.Exec(historySchema); err != nil {
+	if err := initHistory(db); err != nil {
 		db.Close()
 		return nil, fmt.Errorf("open check history %s: %w", path, err)
 	}
 	return &History{path: path, db: db}, nil
+}
+
+// historyAppID marks a check history file (SQLite's application_id: "pwck").
+const historyAppID = 0x7077636b
+
+// ErrForeign: the file is an SQLite database, but not a check history.
+var ErrForeign = errors.New("not a packwatch check history")
+
+// initHistory creates the schema in an empty database and refuses any other
+// database, so that a mistyped path never changes a recording.
+func initHistory(db *sql.DB) error {
+	var app, tables int64
+	if err := db.QueryRow("PRAGMA application_id").Scan(&app); err != nil {
+		return err
+	}
+	if err := db.QueryRow("SELECT count(*) FROM sqlite_schema").Scan(&tables); err != nil {
+		return err
+	}
+	switch {
+	case app == historyAppID:
+	case app == 0 && tables == 0:
+		if _, err := db.Exec(fmt.Sprintf("PRAGMA application_id = %d", historyAppID)); err != nil {
+			return err
+		}
+	default:
+		return ErrForeign
+	}
+	_, err := db.Exec(historySchema)
+	return err
 }
 
 // Path is the history's file.

@@ -283,3 +283,29 @@ func TestHashOfStoredJSON(t *testing.T) {
 		t.Fatal("the hash is not the SHA-256 of the JSON without its hash key")
 	}
 }
+
+// A path that names another SQLite database (a recording) is refused and
+// left unchanged.
+func TestHistoryRefusesForeign(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "other.db")
+	db, err := sql.Open("sqlite", path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := db.Exec("CREATE TABLE blocks (id INTEGER)"); err != nil {
+		t.Fatal(err)
+	}
+	db.Close()
+	if _, err := OpenHistory(path); !errors.Is(err, ErrForeign) {
+		t.Fatalf("foreign database: %v", err)
+	}
+	h, err := OpenHistory(filepath.Join(t.TempDir(), "new.db"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	h.Close()
+	if h, err = OpenHistory(h.Path()); err != nil {
+		t.Fatalf("reopen: %v", err)
+	}
+	h.Close()
+}
