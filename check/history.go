@@ -66,7 +66,7 @@ func OpenHistory(path string) (*History, error) {
 	if !strings.HasPrefix(u, "file:/") {
 		u = "file:/" + u[len("file:"):]
 	}
-	db, err := sql.Open("sqlite", u+"?mode=rwc&_pragma=busy_timeout(5000)&_pragma=journal_mode(WAL)&_pragma=synchronous(FULL)&_txlock=immediate")
+	db, err := sql.Open("sqlite", u+"?mode=rwc&_pragma=busy_timeout(5000)&_pragma=synchronous(FULL)&_txlock=immediate")
 	if err != nil {
 		return nil, fmt.Errorf("open check history %s: %w", path, err)
 	}
@@ -102,6 +102,10 @@ func initHistory(db *sql.DB) error {
 		}
 	default:
 		return ErrForeign
+	}
+	// WAL only once the file is known to be ours: the mode is kept in the file.
+	if _, err := db.Exec("PRAGMA journal_mode = WAL"); err != nil {
+		return err
 	}
 	_, err := db.Exec(historySchema)
 	return err

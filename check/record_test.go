@@ -299,6 +299,15 @@ func TestHistoryRefusesForeign(t *testing.T) {
 	if _, err := OpenHistory(path); !errors.Is(err, ErrForeign) {
 		t.Fatalf("foreign database: %v", err)
 	}
+	db, err = sql.Open("sqlite", path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var mode string
+	if err := db.QueryRow("PRAGMA journal_mode").Scan(&mode); err != nil || mode != "delete" {
+		t.Errorf("the foreign database's journal mode became %q (%v)", mode, err)
+	}
+	db.Close()
 	h, err := OpenHistory(filepath.Join(t.TempDir(), "new.db"))
 	if err != nil {
 		t.Fatal(err)
