@@ -233,6 +233,7 @@ func loadRecording(ctx context.Context, path, profile string, stderr io.Writer) 
 			return nil, err
 		}
 	}
+	bar.set(1)
 	return c.Session(), nil
 }
 
@@ -318,6 +319,7 @@ func loadCapture(ctx context.Context, path, profile string, stderr io.Writer) (*
 		c.SetStart(cr.Start())
 	}
 	c.Add(batch)
+	bar.set(1)
 	bar.done()
 	if err := cr.Err(); err != nil {
 		return nil, fmt.Errorf("read %s: %w", path, err)
