@@ -85,6 +85,10 @@ func (g *guard) originOK(r *http.Request) bool {
 	if err != nil || (u.Scheme != "http" && u.Scheme != "https") {
 		return false
 	}
+	// An origin is scheme://host[:port] and nothing else (RFC 6454 §7).
+	if u.User != nil || (u.Path != "" && u.Path != "/") || u.RawQuery != "" || u.Fragment != "" || u.Opaque != "" {
+		return false
+	}
 	return strings.EqualFold(u.Host, r.Host)
 }
 

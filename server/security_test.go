@@ -120,6 +120,8 @@ func TestOriginOnPost(t *testing.T) {
 		{"foreign origin", "http://evil.example", "/api/packs/a/alarms/1/ack", http.StatusForbidden},
 		{"null origin", "null", "/api/packs/a/alarms/1/ack", http.StatusForbidden},
 		{"other port", "http://127.0.0.1:9999", "/api/packs/a/alarms/1/ack", http.StatusForbidden},
+		{"userinfo", "http://x@127.0.0.1:8080", "/api/packs/a/alarms/1/ack", http.StatusForbidden},
+		{"path", "http://127.0.0.1:8080/evil", "/api/packs/a/alarms/1/ack", http.StatusForbidden},
 		{"same origin, unknown alarm", "http://127.0.0.1:8080", "/api/packs/a/alarms/99/ack", http.StatusNotFound},
 		{"same origin, bad id", "http://127.0.0.1:8080", "/api/packs/a/alarms/x/ack", http.StatusBadRequest},
 		{"same origin", "http://127.0.0.1:8080", "/api/packs/a/alarms/1/ack", http.StatusOK},
