@@ -21,6 +21,8 @@ func runCurve(ctx context.Context, args []string, stdout, stderr io.Writer) int 
 	cells := fs.Bool("cells", false, "a curve for each cell as well as the pack")
 	kind := fs.String("kind", "all", "which runs: discharge, charge or all")
 	out := fs.String("o", "", "write to `FILE`: .csv, .svg or .png (default: CSV on standard output)")
+	deadband := fs.Float64("deadband", 0, "current `AMPS` counted as rest (default 2 % of the rated capacity in A)")
+	minDur := fs.Float64("min-duration", 0, "a rest shorter than `SECONDS` does not split a charge or discharge (default 10)")
 	var compare listFlag
 	fs.Var(&compare, "compare", "overlay the curves of another recording or capture `FILE` (repeatable)")
 	fs.Usage = func() {
@@ -68,7 +70,9 @@ func runCurve(ctx context.Context, args []string, stdout, stderr io.Writer) int 
 			fmt.Fprintln(stderr, "curve:", err)
 			return exitBad
 		}
-		cs := analyze.SessionCurves(s, analyze.Options{StepAh: st, NoCellCurves: !*cells})
+		opt := analyze.Options{StepAh: st, NoCellCurves: !*cells}
+		opt.Segment.DeadbandA, opt.Segment.MinDurationS = *deadband, *minDur
+		cs := analyze.SessionCurves(s, opt)
 		for _, c := range cs {
 			if want != "" && c.Kind != want {
 				continue

@@ -28,6 +28,7 @@ func runReport(ctx context.Context, args []string, stdout, stderr io.Writer) int
 	kneeK := fs.Float64("knee-k", analyze.DefaultKneeK, "knee factor `k`: the knee is where −dV/dQ first exceeds k × its median")
 	closeRatio := fs.Float64("close-ratio", analyze.DefaultCloseRatio, "pre-charge close `RATIO` of the pack voltage")
 	deadband := fs.Float64("deadband", 0, "current `AMPS` counted as rest (default 2 % of the rated capacity in A)")
+	minDur := fs.Float64("min-duration", 0, "a rest shorter than `SECONDS` does not split a charge or discharge (default 10)")
 	minStep := fs.Float64("min-step", 0, "smallest current step in `AMPS` for resistance (default 10 % of the rated capacity in A)")
 	fs.Usage = func() {
 		fmt.Fprintln(stderr, "Usage: packwatch report FILE [--profile OTHER] [--json] [-o OUT.html|OUT.json]\n\nAnalyses a recording (.db) or a capture (.capture, .txt): segments, capacity and energy, knee and\nsuggested cutoff, DC resistance at current steps, incremental capacity, bursts, imbalance, pre-charge.")
@@ -66,6 +67,7 @@ func runReport(ctx context.Context, args []string, stdout, stderr io.Writer) int
 	}
 	opt := analyze.Options{StepAh: st, KneeK: *kneeK, CloseRatio: *closeRatio}
 	opt.Segment.DeadbandA = *deadband
+	opt.Segment.MinDurationS = *minDur
 	opt.Step.MinStepA = *minStep
 	rep := analyze.Analyze(s, opt)
 	rep.Source = filepath.Base(pos[0])
