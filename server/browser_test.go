@@ -216,6 +216,23 @@ func TestBrowserEndToEnd(t *testing.T) {
 	eng.empty = false
 	eng.mu.Unlock()
 
+	// Two packs: a tab each with its state; the title keeps the worst.
+	eng.mu.Lock()
+	eng.twoPacks = true
+	eng.mu.Unlock()
+	waitJS(t, ctx, "two pack tabs", `document.querySelectorAll('#packs .packtab').length === 2 && document.querySelectorAll('#packs .packtab')[1].textContent.includes('Test pack B')`, 30*time.Second)
+	if err := chromedp.Do(ctx, chromedp.Click(chromedp.CSS(`#packs .packtab:nth-child(2)`))); err != nil {
+		t.Fatal(err)
+	}
+	waitJS(t, ctx, "pack B shown", `document.querySelectorAll('#cell-bars .cell').length === 16 && document.querySelector('#packs .packtab.sel').textContent.includes('Test pack B') && document.title.startsWith('TRIP')`, 30*time.Second)
+	if err := chromedp.Do(ctx, chromedp.Click(chromedp.CSS(`#packs .packtab:nth-child(1)`))); err != nil {
+		t.Fatal(err)
+	}
+	waitJS(t, ctx, "pack A shown again", `document.querySelectorAll('#cell-bars .cell').length === 48`, 30*time.Second)
+	eng.mu.Lock()
+	eng.twoPacks = false
+	eng.mu.Unlock()
+
 	// Demo data is watermarked wherever values show.
 	eng.mu.Lock()
 	eng.mode = "simulated"

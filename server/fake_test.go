@@ -34,6 +34,8 @@ type fakeEngine struct {
 	mainOn   bool
 	// empty sends a pack with no readings at all: nil lists and numbers.
 	empty bool
+	// twoPacks adds a second pack "b" with the first 16 cells of "a".
+	twoPacks bool
 }
 
 func (f *fakeEngine) setPrecharge(ratio float64, mainOn bool) {
@@ -169,6 +171,12 @@ func (f *fakeEngine) Snapshot(now time.Time) *pack.Snapshot {
 		{Name: "console", Kind: "serial-text", State: "disconnected", Reason: "device not found", RateHz: 0, Diagnosis: "no data: check the cable and the port name"},
 	}
 	s := &pack.Snapshot{Seq: f.seq, ServerTime: now.UTC().Format(time.RFC3339Nano), DataT: pack.Num(f.dataT), Mode: f.mode, Packs: []pack.PackSnapshot{p}}
+	if f.twoPacks {
+		b := p
+		b.ID, b.Name, b.State, b.Alarms = "b", "Test pack B", "ok", nil
+		b.Cells = p.Cells[:min(16, len(p.Cells))]
+		s.Packs = append(s.Packs, b)
+	}
 	f.last = s
 	return s
 }
