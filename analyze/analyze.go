@@ -119,7 +119,7 @@ func Analyze(s *Session, opt Options) *Report {
 	if s.Pack.CapacityAh <= 0 {
 		rep.Warnings = append(rep.Warnings, "the profile gives no capacity_ah: no C-rates or SOC")
 	}
-	ch := countCharge(s)
+	ch := CountCharge(s)
 	segs := Segments(s, ch, opt.Segment)
 	rep.Segments = segs
 	runs := Runs(s, ch, segs)
@@ -320,7 +320,7 @@ func SessionCurves(s *Session, opt Options) []Curve {
 	if s.Current.Empty() {
 		return nil
 	}
-	ch := countCharge(s)
+	ch := CountCharge(s)
 	runs := Runs(s, ch, Segments(s, ch, opt.Segment))
 	var out []Curve
 	for _, r := range runs {

@@ -71,8 +71,9 @@ type Burst struct {
 	RecoveryCellV Num `json:"recovery_cell_v"`
 }
 
-// Bursts finds the high-current events.
+// Bursts finds the high-current events. Zero options take their defaults.
 func Bursts(s *Session, ch *Charge, opt BurstOptions) []Burst {
+	opt = opt.withDefaults(s, SegmentOptions{}.withDefaults(s.Pack.CapacityAh).DeadbandA)
 	tr := &s.Current
 	var out []Burst
 	n := tr.Len()

@@ -10,8 +10,8 @@ type Charge struct {
 	Throughput []float64
 }
 
-// countCharge integrates the session's current.
-func countCharge(s *Session) *Charge {
+// CountCharge integrates the session's current (see Charge).
+func CountCharge(s *Session) *Charge {
 	tr := &s.Current
 	n := tr.Len()
 	c := &Charge{T: tr.T, Q: make([]float64, n), Throughput: make([]float64, n)}

@@ -260,7 +260,7 @@ func TestResampleIndependentOfCurrent(t *testing.T) {
 		for k := range ct {
 			s.Current.Add(ct[k], ci[k])
 		}
-		ch := countCharge(s)
+		ch := CountCharge(s)
 		// voltage readings at their own random times, from the exact charge
 		exact := Trace{T: ct, V: cq}
 		var vt, vv []float64
@@ -308,7 +308,7 @@ func TestCountCharge(t *testing.T) {
 	for k, i := range []float64{10, 12, 14, 16} {
 		s.Current.Add(float64(k), i)
 	}
-	ch := countCharge(s)
+	ch := CountCharge(s)
 	if got := ch.Q[3] * 3600; math.Abs(got-39) > 1e-9 {
 		t.Errorf("trapezoid %.6f A·s, want 39", got)
 	}
@@ -316,12 +316,12 @@ func TestCountCharge(t *testing.T) {
 	for k := 0; k <= 1800; k++ {
 		s.Current.Add(float64(k), -25)
 	}
-	ch = countCharge(s)
+	ch = CountCharge(s)
 	if z := 0.80 + ch.Q[1800]/50; math.Abs(z-0.55) > 1e-9 {
 		t.Errorf("z = %.6f, want 0.550000", z)
 	}
 	s.Gaps = []float64{900.5}
-	ch = countCharge(s)
+	ch = CountCharge(s)
 	if got := -ch.Q[1800] * 3600; math.Abs(got-25*1799) > 1e-6 {
 		t.Errorf("with a gap: %.3f A·s, want %d (one second not integrated)", got, 25*1799)
 	}
@@ -428,7 +428,7 @@ func TestBursts(t *testing.T) {
 		}
 	}
 	s.Finish()
-	ch := countCharge(s)
+	ch := CountCharge(s)
 	bs := Bursts(s, ch, BurstOptions{}.withDefaults(s, 1))
 	if len(bs) != 1 {
 		t.Fatalf("%d bursts, want 1", len(bs))
@@ -491,7 +491,7 @@ func TestGapSplitsSegments(t *testing.T) {
 	}
 	s.Gaps = []float64{1200}
 	s.Finish()
-	ch := countCharge(s)
+	ch := CountCharge(s)
 	segs := Segments(s, ch, SegmentOptions{})
 	if len(segs) != 2 || segs[0].Kind != Discharge || segs[1].Kind != Discharge {
 		t.Fatalf("segments %+v, want two discharges", segs)

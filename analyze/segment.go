@@ -212,9 +212,9 @@ func percentile(x []float64, p float64) float64 {
 }
 
 // FullAt is the data time (s) the pack counts as full before discharge
-// segment d: the end of the last charge taper before it, or, when no charge
-// was recorded before it, the start of the first discharge. ok is false
-// when there is no discharge.
+// segment d: the end of the last charge taper before it (fromTaper true),
+// or, when no charge taper was recorded before it, the start of the first
+// discharge.
 func FullAt(segs []Segment, d int) (t float64, fromTaper bool) {
 	for k := d - 1; k >= 0; k-- {
 		if segs[k].Kind == ChargeCV {
