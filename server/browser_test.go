@@ -301,3 +301,30 @@ func screenshot(t *testing.T, ctx context.Context, name string) {
 	}
 	t.Logf("screenshot: %s", p)
 }
+
+// TestBrowserReplay: in replay mode the page shows the replay controls and
+// marks every panel; its buttons reach the Replay through same-origin POSTs.
+func TestBrowserReplay(t *testing.T) {
+	ctx, cancel := browser(t, 1400, 900)
+	defer cancel()
+	eng := newFakeEngine(16, 4)
+	eng.mode = "replay"
+	rp := &fakeReplay{}
+	r := startServer(t, Options{Engine: eng, Mode: "replay", Replay: rp})
+	if err := chromedp.Do(ctx, chromedp.EmulateViewport(1400, 900), chromedp.Navigate(r.base+"/")); err != nil {
+		t.Fatalf("navigate: %v", err)
+	}
+	waitJS(t, ctx, "replay page", `!document.getElementById('replay').hidden && document.getElementById('mode').textContent.includes('REPLAY') && document.getElementById('live').textContent.includes('REPLAY') && document.querySelectorAll('#cell-bars .cell').length === 16`, 30*time.Second)
+	if mark := evalJS[string](t, ctx, `getComputedStyle(document.querySelector('.cells'), '::after').content`); !strings.Contains(mark, "REPLAY") {
+		t.Errorf("cells watermark %q, want REPLAY", mark)
+	}
+	if err := chromedp.Do(ctx,
+		chromedp.Click(chromedp.CSS(`#replay [data-replay="pause"]`)),
+		chromedp.SetValue(chromedp.CSS(`#replay-seek`), "120"),
+		chromedp.Click(chromedp.CSS(`#replay [data-replay="seek"]`)),
+	); err != nil {
+		t.Fatal(err)
+	}
+	waitFor(t, "pause and seek reached the replay", 30*time.Second, func() bool { return rp.called() == "pause,seek 2m0s" })
+	screenshot(t, ctx, "dashboard-replay-1400x900.png")
+}

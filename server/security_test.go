@@ -12,6 +12,7 @@ import (
 	"regexp"
 	"strconv"
 	"strings"
+	"sync"
 	"testing"
 	"time"
 
@@ -370,11 +371,20 @@ func TestMethods(t *testing.T) {
 }
 
 type fakeReplay struct {
+	mu    sync.Mutex
 	calls []string
 	fail  bool
 }
 
+func (f *fakeReplay) called() string {
+	f.mu.Lock()
+	defer f.mu.Unlock()
+	return strings.Join(f.calls, ",")
+}
+
 func (f *fakeReplay) rec(s string) error {
+	f.mu.Lock()
+	defer f.mu.Unlock()
 	f.calls = append(f.calls, s)
 	if f.fail {
 		return errors.New("replay: not seekable")
@@ -411,13 +421,15 @@ func TestReplayRoutes(t *testing.T) {
 		}
 	}
 	want := []string{"pause", "play", "seek 1m30.5s", "speed 30"}
-	if strings.Join(rp.calls, ",") != strings.Join(want, ",") {
+	if rp.called() != strings.Join(want, ",") {
 		t.Errorf("replay calls %q, want %q", rp.calls, want)
 	}
 	if w := do(s, "POST", "/api/replay/pause", nil); w.Code != http.StatusForbidden {
 		t.Errorf("replay POST without Origin: %d, want 403", w.Code)
 	}
+	rp.mu.Lock()
 	rp.fail = true
+	rp.mu.Unlock()
 	if w := do(s, "POST", "/api/replay/play", origin); w.Code != http.StatusConflict || !strings.Contains(w.Body.String(), "not seekable") {
 		t.Errorf("failing replay: %d %s", w.Code, w.Body.String())
 	}
