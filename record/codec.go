@@ -322,9 +322,13 @@ func (d *blockDecoder) decode(b []byte, dst []bus.Message) ([]bus.Message, error
 	t := base
 	for i := range out {
 		var tag, dt uint64
-		if p+1 < len(body) && body[p]|body[p+1] < 0x80 { // one byte each: the common case
+		// The common cases: a one-byte tag and a one- or two-byte step.
+		if p+2 < len(body) && body[p]|body[p+1] < 0x80 {
 			tag, dt = uint64(body[p]), uint64(body[p+1])
 			p += 2
+		} else if p+2 < len(body) && body[p] < 0x80 && body[p+2] < 0x80 {
+			tag, dt = uint64(body[p]), uint64(body[p+1]&0x7f)|uint64(body[p+2])<<7
+			p += 3
 		} else {
 			tag, p, ok = uvarintAt(body, p)
 			if !ok {
