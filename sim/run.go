@@ -111,8 +111,14 @@ func (s *Sim) Run(ctx context.Context, sink bus.Sink) error {
 			continue
 		case <-ticks:
 		}
-		target := simAnchor + int64(float64(now().Sub(wallAnchor))*s.speed)
 		s.mu.Lock()
+		if s.paused || s.pauses != seenPauses {
+			// paused (and perhaps resumed) while waiting: the loop's top
+			// re-anchors first, so that the paused time does not count
+			s.mu.Unlock()
+			continue
+		}
+		target := simAnchor + int64(float64(now().Sub(wallAnchor))*s.speed)
 		s.generate(min(target, end))
 		s.mu.Unlock()
 		s.flush(sink)
