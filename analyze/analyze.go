@@ -69,6 +69,8 @@ type Report struct {
 	Pulses         []Step         `json:"pulses"`
 	Rejected       []Rejected     `json:"pulses_rejected"`
 	RejectedCounts map[string]int `json:"pulses_rejected_counts,omitempty"`
+	// Resistance sums the accepted steps up: medians per cell and for the pack.
+	Resistance ResistanceSummary `json:"resistance"`
 
 	Bursts    []Burst     `json:"bursts"`
 	ICA       []ICA       `json:"ica"`
@@ -160,6 +162,7 @@ func Analyze(s *Session, opt Options) *Report {
 	// resistance
 	soc := socFunc(s, ch, runs)
 	rep.Pulses, rep.Rejected = Steps(s, opt.Step, so.DeadbandA, soc)
+	rep.Resistance = SummariseSteps(rep.Pulses)
 	if len(rep.Rejected) > maxRejectedListed {
 		rep.RejectedCounts = map[string]int{}
 		for _, r := range rep.Rejected {

@@ -110,6 +110,10 @@ func TestSyntheticSession(t *testing.T) {
 	if big < len(tr.stepTimes) {
 		t.Errorf("%d steps of 30 A or more measured, the session has %d up and %d down", big, len(tr.stepTimes), len(tr.stepTimes)-1)
 	}
+	sum := rep.Resistance
+	if !near(float64(sum.Pack.R0), packR0*1000, 0.05*packR0*1000) || len(sum.Cells) != 4 || !sum.Cells[2].Outlier || sum.Cells[0].Outlier {
+		t.Errorf("resistance summary %+v", sum)
+	}
 	if len(rep.Pulses) == 0 || rep.Pulses[0].Method != MethodPulse {
 		t.Errorf("the first pulse should be a pulse from rest")
 	}

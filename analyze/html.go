@@ -155,11 +155,14 @@ section,table,figure{page-break-inside:avoid;break-inside:avoid}
 
 <section><h2>DC internal resistance at current steps</h2>
 <p class="note">{{.R.ResistanceNote}}</p>
-{{if .R.Pulses}}<table>
+{{if .R.Pulses}}<p>Medians over {{.R.Resistance.Steps}} steps: pack R0 {{n .R.Resistance.Pack.R0 2}} mΩ, after 1 s {{n .R.Resistance.Pack.R1s 2}} mΩ, after 10 s {{n .R.Resistance.Pack.R10s 2}} mΩ; outside the cells {{n .R.Resistance.InterconnectR0 2}} mΩ.</p>
+<table><tr><th>cell</th><th>R0 (mΩ)</th><th>R 1 s</th><th>R 10 s</th></tr>
+{{range .R.Resistance.Cells}}<tr{{if .Outlier}} class="warn"{{end}}><td>{{.Cell}}</td><td>{{n .R0 2}}</td><td>{{n .R1s 2}}</td><td>{{n .R10s 2}}</td></tr>{{end}}</table>
+<table>
 <tr><th>t (s)</th><th class="l">method</th><th>ΔI (A)</th><th>R0 (mΩ)</th><th>R 1 s</th><th>R 10 s</th><th>cells R0 (mΩ)</th><th>outside cells (mΩ)</th><th>SOC (%)</th><th>T (°C)</th></tr>
-{{range .R.Pulses}}<tr><td>{{n .T 1}}</td><td class="l">{{.Method}}</td><td>{{n .DeltaA 1}}</td><td>{{n .R0 2}}</td><td>{{n .R1s 2}}</td><td>{{n .R10s 2}}</td>
+{{range $i, $p := .R.Pulses}}{{if lt $i 40}}{{with $p}}<tr><td>{{n .T 1}}</td><td class="l">{{.Method}}</td><td>{{n .DeltaA 1}}</td><td>{{n .R0 2}}</td><td>{{n .R1s 2}}</td><td>{{n .R10s 2}}</td>
 <td class="l">{{range .Cells}}{{if .Outlier}}<strong class="warn">{{.Cell}}: {{n .R0 2}}</strong>{{else}}{{.Cell}}: {{n .R0 2}}{{end}} {{end}}</td><td>{{n .InterconnectR0 2}}</td><td>{{n .SOCPct 0}}</td><td>{{n .TempC 1}}</td></tr>
-{{end}}</table>{{else}}<p>No usable current step.</p>{{end}}
+{{end}}{{end}}{{end}}</table>{{if gt (len .R.Pulses) 40}}<p class="note">The first 40 of {{len .R.Pulses}} steps; the JSON report lists them all.</p>{{end}}{{else}}<p>No usable current step.</p>{{end}}
 {{if .R.Rejected}}<p class="note">Steps not used: {{range .R.Rejected}}{{n .T 1}} s ({{.Reason}}); {{end}}</p>{{end}}
 {{if .R.RejectedCounts}}<p class="note">All steps not used, by reason: {{range $k, $v := .R.RejectedCounts}}{{$k}}: {{$v}}; {{end}}</p>{{end}}
 </section>

@@ -298,6 +298,56 @@ func (c stepChannel) measure(v *Trace) (r Resist, noise, ok bool) {
 	return r, noise, true
 }
 
+// ResistanceSummary is the median of each resistance over the accepted
+// steps, for the pack and each cell (mΩ), and how many steps there were.
+type ResistanceSummary struct {
+	Steps          int      `json:"steps"`
+	Pack           Resist   `json:"pack"`
+	Cells          []Resist `json:"cells"`
+	InterconnectR0 Num      `json:"interconnect_r0_mohm"`
+}
+
+// SummariseSteps takes the medians over steps (missing values left out).
+func SummariseSteps(steps []Step) ResistanceSummary {
+	out := ResistanceSummary{Steps: len(steps), Cells: []Resist{}}
+	med := func(get func(Step) Num) Num {
+		var x []float64
+		for _, s := range steps {
+			if v := get(s); v.Valid() {
+				x = append(x, float64(v))
+			}
+		}
+		if len(x) == 0 {
+			return none
+		}
+		return Num(median(x))
+	}
+	out.Pack = Resist{R0: med(func(s Step) Num { return s.R0 }), R1s: med(func(s Step) Num { return s.R1s }),
+		R10s: med(func(s Step) Num { return s.R10s }), Delay: med(func(s Step) Num { return s.Delay })}
+	out.InterconnectR0 = med(func(s Step) Num { return s.InterconnectR0 })
+	nc := 0
+	for _, s := range steps {
+		nc = max(nc, len(s.Cells))
+	}
+	for c := 0; c < nc; c++ {
+		cell := func(get func(Resist) Num) func(Step) Num {
+			return func(s Step) Num {
+				if c < len(s.Cells) {
+					return get(s.Cells[c])
+				}
+				return none
+			}
+		}
+		out.Cells = append(out.Cells, Resist{Cell: c + 1,
+			R0:    med(cell(func(r Resist) Num { return r.R0 })),
+			R1s:   med(cell(func(r Resist) Num { return r.R1s })),
+			R10s:  med(cell(func(r Resist) Num { return r.R10s })),
+			Delay: med(cell(func(r Resist) Num { return r.Delay }))})
+	}
+	outliers(out.Cells, out.InterconnectR0)
+	return out
+}
+
 // outliers flags cells whose R0 stands out from the others (more than
 // 1.5 × the median and more than 3 robust standard deviations above it),
 // and an interconnect share larger than the median cell's R0.

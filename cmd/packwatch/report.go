@@ -124,6 +124,21 @@ func summary(w io.Writer, r *analyze.Report) {
 	}
 	fmt.Fprintf(w, "resistance: %d steps measured, %d not used; bursts: %d; ICA peaks: %d; pre-charges: %d\n",
 		len(r.Pulses), len(r.Rejected), len(r.Bursts), len(r.ICAPeaks), len(r.Precharge))
+	if rs := r.Resistance; rs.Steps > 0 {
+		fmt.Fprintf(w, "resistance, median over %d steps: pack R0 %s mΩ, after 1 s %s, after 10 s %s; outside the cells %s mΩ\n",
+			rs.Steps, n(rs.Pack.R0, 2), n(rs.Pack.R1s, 2), n(rs.Pack.R10s, 2), n(rs.InterconnectR0, 2))
+		var cells []string
+		for _, c := range rs.Cells {
+			mark := ""
+			if c.Outlier {
+				mark = " (stands out)"
+			}
+			cells = append(cells, fmt.Sprintf("%d: %s%s", c.Cell, n(c.R0, 2), mark))
+		}
+		if len(cells) > 0 {
+			fmt.Fprintf(w, "  cells R0 (mΩ): %s\n", strings.Join(cells, ", "))
+		}
+	}
 	const listed = 8
 	for k, p := range r.Pulses {
 		if k == listed {
