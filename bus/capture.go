@@ -197,8 +197,10 @@ func parseCaptureFrame(idStr, dataStr string) (can.Frame, error) {
 }
 
 // AppendCapture appends one message as a capture line (with newline). start
-// is the capture's start in ns; name is the message's source name.
+// is the capture's start in ns; name is the message's source name. Kinds the
+// format has no line for (error frames) append nothing.
 func AppendCapture(dst []byte, m *Message, start int64, name string) []byte {
+	n := len(dst)
 	dst = strconv.AppendFloat(dst, float64(m.T-start)/1e9, 'f', 6, 64)
 	dst = append(dst, ' ')
 	dst = append(dst, name...)
@@ -219,7 +221,7 @@ func AppendCapture(dst []byte, m *Message, start int64, name string) []byte {
 		dst = append(dst, " gap "...)
 		dst = append(dst, m.Text...)
 	default:
-		return dst[:0]
+		return dst[:n] // nothing to write for other kinds
 	}
 	return append(dst, '\n')
 }

@@ -114,3 +114,11 @@ func FuzzCaptureLine(f *testing.F) {
 		}
 	})
 }
+
+func TestAppendCaptureKeepsPrefix(t *testing.T) {
+	prefix := []byte("0.000 bms can 123 00\n")
+	got := AppendCapture(append([]byte(nil), prefix...), &Message{Kind: KindError}, 0, "bms")
+	if string(got) != string(prefix) {
+		t.Errorf("an error frame changed the buffer: %q", got)
+	}
+}

@@ -40,9 +40,7 @@ func commands() map[string]command {
 		"ports": {"list serial ports (with their usb: names) and CAN interfaces", func(_ context.Context, args []string, stdout, stderr io.Writer) int {
 			return runPorts(args, stdout, stderr)
 		}},
-		"simulate": {"drive a device or write a capture from a simulated pack", func(_ context.Context, args []string, stdout, stderr io.Writer) int {
-			return runSimulate(args, stdout, stderr)
-		}},
+		"simulate": {"drive a device or write a capture from a simulated pack", simulateCtx},
 		"help": {"list the commands", nil},
 	}
 }
