@@ -41,7 +41,7 @@ func commands() map[string]command {
 			return runPorts(args, stdout, stderr)
 		}},
 		"simulate": {"drive a device or write a capture from a simulated pack", simulateCtx},
-		"help": {"list the commands", nil},
+		"help":     {"list the commands", nil},
 	}
 }
 
