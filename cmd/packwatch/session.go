@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"io"
 	"log/slog"
+	"net/http"
 	"os"
 	"path/filepath"
 	"strings"
@@ -15,8 +16,10 @@ import (
 	"golang.org/x/sync/errgroup"
 
 	"packwatch/bus"
+	"packwatch/check"
 	"packwatch/config"
 	"packwatch/decode"
+	"packwatch/metrics"
 	"packwatch/pack"
 	"packwatch/record"
 	"packwatch/server"
@@ -46,6 +49,34 @@ type session struct {
 	log     *slog.Logger
 	mu      sync.Mutex // guards each packEntry's prof and m (reload swaps them)
 	stats   *statsRecorder
+	tap     *check.RawTap
+}
+
+// profileOf returns the profile in use for a pack id, nil for none.
+func (s *session) profileOf(id string) *config.Profile {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	for _, p := range s.packs {
+		if p.id == id {
+			return p.prof
+		}
+	}
+	return nil
+}
+
+// describe says where the session's data comes from, for check records.
+func (s *session) describe() string {
+	var names []string
+	for _, d := range s.devices {
+		names = append(names, d.spec.Name+" ("+d.spec.Kind+" "+d.spec.Device+")")
+	}
+	switch s.mode {
+	case "simulated":
+		return "simulated pack"
+	case "replay":
+		return "replay of a recording: " + strings.Join(names, ", ")
+	}
+	return "live sources " + strings.Join(names, ", ")
 }
 
 // newSession builds the engine for the given profiles. Devices used by
@@ -74,10 +105,18 @@ func newSession(profiles []*config.Profile, maps []*decode.Map, mode string, rec
 func newSessionOn(devices []device, byName bool, profiles []*config.Profile, maps []*decode.Map, mode string, rec *record.Writer, log *slog.Logger) (*session, error) {
 	s := &session{mode: mode, rec: rec, log: log, devices: devices}
 	opt := pack.Options{Mode: mode, WallClockAges: mode == "live"}
+	var names []string
+	for _, d := range devices {
+		names = append(names, d.spec.Name)
+	}
+	// the check panel keeps the latest raw messages for a result's record
+	s.tap = check.NewRawTap(0, names)
 	var stats *statsRecorder
 	if rec != nil {
 		stats = &statsRecorder{}
-		opt.RawSink = stats
+		opt.RawSink = check.RawTee{stats, s.tap}
+	} else {
+		opt.RawSink = s.tap
 	}
 	s.eng = pack.NewEngine(opt)
 	ids := map[string]int{}
@@ -225,9 +264,22 @@ func openRecording(path string, force, appendTo bool, mode string, profiles []*c
 	return w, nil
 }
 
+// openCheckHistory opens the pre-flight check history at path, or at the
+// default place.
+func openCheckHistory(path string) (*check.History, error) {
+	if path == "" {
+		var err error
+		if path, err = check.DefaultHistoryPath(); err != nil {
+			return nil, err
+		}
+	}
+	return check.OpenHistory(path)
+}
+
 // serveFlags are the flags serve and demo share.
 type serveFlags struct {
 	addr, token, tlsCert, tlsKey, record string
+	checkHistory                         string
 	force, appendRec                     bool
 }
 
@@ -242,6 +294,7 @@ func (f *serveFlags) register(fs interface {
 	fs.StringVar(&f.record, "record", "", "record the session raw to `FILE` (SQLite)")
 	fs.BoolVar(&f.force, "force", false, "with --record: replace an existing file")
 	fs.BoolVar(&f.appendRec, "append", false, "with --record: continue an existing recording")
+	fs.StringVar(&f.checkHistory, "check-history", "", "pre-flight check history `FILE` (default: in the user's config folder, or $"+check.HistoryEnv+")")
 }
 
 // runSession runs the server and the data sources until ctx ends, then
@@ -252,8 +305,26 @@ func runSession(ctx context.Context, s *session, f *serveFlags, mode string, dat
 
 // runSessionWith is runSession with replay controls on the page.
 func runSessionWith(ctx context.Context, s *session, f *serveFlags, mode string, replay server.Replay, data func(ctx context.Context) error, stdout io.Writer) error {
+	mh := metrics.NewHandler(metrics.Options{Version: version, Logger: s.log})
+	handlers := map[string]http.Handler{"/metrics": mh}
+	checkPanel := false
+	if hist, err := openCheckHistory(f.checkHistory); err != nil {
+		s.log.Warn("pre-flight check panel off", "err", err)
+	} else {
+		defer hist.Close()
+		ho := check.HandlerOptions{Engine: s.eng, Profile: s.profileOf, History: hist, Raw: s.tap, Mode: mode, Source: s.describe()}
+		if s.rec != nil {
+			ho.Events = s.rec
+		}
+		if ch, err := check.NewHandler(ho); err != nil {
+			s.log.Warn("pre-flight check panel off", "err", err)
+		} else {
+			handlers["/api/check/*"] = ch
+			checkPanel = true
+		}
+	}
 	srv, err := server.New(server.Options{
-		Replay: replay,
+		Replay: replay, OnSnapshot: mh.Observe, Handlers: handlers, CheckPanel: checkPanel,
 		Addr:   f.addr, Engine: s.eng, Token: f.token, TLSCert: f.tlsCert, TLSKey: f.tlsKey,
 		BusView:     func() any { return s.eng.BusView() },
 		ProfileJSON: s.profileJSON,

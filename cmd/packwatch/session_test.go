@@ -185,6 +185,21 @@ func TestDemo(t *testing.T) {
 	if snap.Mode != "simulated" || !strings.Contains(out.String(), "SIMULATED") {
 		t.Errorf("demo not marked simulated: mode %q", snap.Mode)
 	}
+	// the same session serves /metrics and the pre-flight check panel's API
+	for path, want := range map[string]string{
+		"metrics":                            `packwatch_cell_voltage_volts{cell="7",pack="buoy-winch"}`,
+		"api/check/settings?pack=buoy-winch": `min_soc_pct`,
+	} {
+		resp, err := http.Get(url + path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		body, _ := io.ReadAll(resp.Body)
+		resp.Body.Close()
+		if resp.StatusCode != 200 || !strings.Contains(string(body), want) {
+			t.Errorf("GET /%s: %d, no %q in %.300s", path, resp.StatusCode, want, body)
+		}
+	}
 	cancel()
 	select {
 	case c := <-code:
