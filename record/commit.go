@@ -1,6 +1,7 @@
 package record
 
 import (
+	"database/sql"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -123,6 +124,43 @@ func overrunEvent(o overrun, at int64) Event {
 	return Event{T: t, Kind: EventOverrun, Source: NoSource, Text: text, JSON: string(j)}
 }
 
+// statements are prepared once (on the writer's single connection) and
+// reused by every commit, instead of parsing SQL four times a second.
+type statements struct {
+	block, event, profile, stat, beat *sql.Stmt
+}
+
+func (w *Writer) prepare() error {
+	var err error
+	p := func(q string) *sql.Stmt {
+		if err != nil {
+			return nil
+		}
+		var st *sql.Stmt
+		st, err = w.db.Prepare(q)
+		return st
+	}
+	w.st = statements{
+		block:   p("INSERT INTO blocks(t0, t1, n, data) VALUES(?, ?, ?, ?)"),
+		event:   p("INSERT INTO events(t, kind, source, text, json) VALUES(?, ?, ?, ?, ?)"),
+		profile: p("INSERT INTO profiles(t, name, hash, text) VALUES(?, ?, ?, ?)"),
+		stat:    p("INSERT OR REPLACE INTO stats(bind, sec, min, max, last) VALUES(?, ?, ?, ?, ?)"),
+		beat:    p("UPDATE sessions SET heartbeat=?, messages=? WHERE id=?"),
+	}
+	if err != nil {
+		w.closeStatements()
+	}
+	return err
+}
+
+func (w *Writer) closeStatements() {
+	for _, st := range []*sql.Stmt{w.st.block, w.st.event, w.st.profile, w.st.stat, w.st.beat} {
+		if st != nil {
+			st.Close()
+		}
+	}
+}
+
 // commit writes one batch of work in one transaction.
 func (w *Writer) commit(work *batchWork) error {
 	tx, err := w.db.Begin()
@@ -133,10 +171,7 @@ func (w *Writer) commit(work *batchWork) error {
 	var msgs uint64
 	lastT := w.lastT.Load()
 	if len(work.blocks) > 0 {
-		st, err := tx.Prepare("INSERT INTO blocks(t0, t1, n, data) VALUES(?, ?, ?, ?)")
-		if err != nil {
-			return err
-		}
+		st := tx.Stmt(w.st.block)
 		for _, b := range work.blocks {
 			if _, err := st.Exec(b.info.t0, b.info.t1, b.info.n, b.data); err != nil {
 				return fmt.Errorf("insert block: %w", err)
@@ -144,42 +179,40 @@ func (w *Writer) commit(work *batchWork) error {
 			msgs += uint64(b.info.n)
 			lastT = max(lastT, b.info.t1)
 		}
-		st.Close()
 	}
-	for _, e := range work.events {
-		var src, js any
-		if e.Source >= 0 {
-			src = e.Source
-		}
-		if e.JSON != "" {
-			js = e.JSON
-		}
-		if _, err := tx.Exec("INSERT INTO events(t, kind, source, text, json) VALUES(?, ?, ?, ?, ?)",
-			e.T, e.Kind, src, e.Text, js); err != nil {
-			return fmt.Errorf("insert event: %w", err)
+	if len(work.events) > 0 {
+		st := tx.Stmt(w.st.event)
+		for _, e := range work.events {
+			var src, js any
+			if e.Source >= 0 {
+				src = e.Source
+			}
+			if e.JSON != "" {
+				js = e.JSON
+			}
+			if _, err := st.Exec(e.T, e.Kind, src, e.Text, js); err != nil {
+				return fmt.Errorf("insert event: %w", err)
+			}
 		}
 	}
-	for _, p := range work.profiles {
-		if _, err := tx.Exec("INSERT INTO profiles(t, name, hash, text) VALUES(?, ?, ?, ?)",
-			p.T, p.Name, p.Hash, p.Text); err != nil {
-			return fmt.Errorf("insert profile: %w", err)
+	if len(work.profiles) > 0 {
+		st := tx.Stmt(w.st.profile)
+		for _, p := range work.profiles {
+			if _, err := st.Exec(p.T, p.Name, p.Hash, p.Text); err != nil {
+				return fmt.Errorf("insert profile: %w", err)
+			}
 		}
 	}
 	if len(work.stats) > 0 {
-		st, err := tx.Prepare("INSERT OR REPLACE INTO stats(bind, sec, min, max, last) VALUES(?, ?, ?, ?, ?)")
-		if err != nil {
-			return err
-		}
+		st := tx.Stmt(w.st.stat)
 		for _, s := range work.stats {
 			if _, err := st.Exec(s.row.Bind, s.sec, s.row.Min, s.row.Max, s.row.Last); err != nil {
 				return fmt.Errorf("insert stats: %w", err)
 			}
 		}
-		st.Close()
 	}
 	total := w.committed.Load() + msgs
-	if _, err := tx.Exec("UPDATE sessions SET heartbeat=?, messages=? WHERE id=?",
-		time.Now().UnixNano(), total, w.session); err != nil {
+	if _, err := tx.Stmt(w.st.beat).Exec(time.Now().UnixNano(), total, w.session); err != nil {
 		return fmt.Errorf("heartbeat: %w", err)
 	}
 	if err := tx.Commit(); err != nil {

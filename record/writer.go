@@ -79,6 +79,7 @@ type Writer struct {
 	path    string
 	opt     Options
 	db      *sql.DB
+	st      statements
 	session int64
 
 	mu       sync.Mutex
@@ -147,6 +148,10 @@ func Create(path string, meta Meta, opt Options) (*Writer, error) {
 	w.room = sync.NewCond(&w.mu)
 	w.enc.reset()
 	if err := w.startSession(meta); err != nil {
+		db.Close()
+		return nil, fmt.Errorf("create recording %s: %w", path, err)
+	}
+	if err := w.prepare(); err != nil {
 		db.Close()
 		return nil, fmt.Errorf("create recording %s: %w", path, err)
 	}
@@ -432,6 +437,7 @@ func (w *Writer) Close() error {
 	if e != nil && err == nil {
 		err = fmt.Errorf("close recording %s: %w", w.path, e)
 	}
+	w.closeStatements()
 	if e := w.db.Close(); e != nil && err == nil {
 		err = fmt.Errorf("close recording %s: %w", w.path, e)
 	}
