@@ -325,7 +325,7 @@ func runSessionWith(ctx context.Context, s *session, f *serveFlags, mode string,
 	}
 	srv, err := server.New(server.Options{
 		Replay: replay, OnSnapshot: mh.Observe, Handlers: handlers, CheckPanel: checkPanel,
-		Addr:   f.addr, Engine: s.eng, Token: f.token, TLSCert: f.tlsCert, TLSKey: f.tlsKey,
+		Addr: f.addr, Engine: s.eng, Token: f.token, TLSCert: f.tlsCert, TLSKey: f.tlsKey,
 		BusView:     func() any { return s.eng.BusView() },
 		ProfileJSON: s.profileJSON,
 		Mode:        mode, Version: version, Logger: s.log, Banner: stdout,
