@@ -16,6 +16,9 @@ import (
 	"testing"
 	"time"
 
+	"go.einride.tech/can"
+
+	"packwatch/bus"
 	"packwatch/config"
 	"packwatch/decode"
 	"packwatch/pack"
@@ -288,5 +291,46 @@ func TestDemoRecordReplay(t *testing.T) {
 	cancel2()
 	if c := <-code; c != 0 {
 		t.Fatalf("replay exit %d: %s", c, errb.String())
+	}
+}
+
+// TestTwoPacksOverlappingIDs: two packs on separate buses whose BMSs use the
+// same IDs are kept apart: each pack decodes only its own source's frames.
+func TestTwoPacksOverlappingIDs(t *testing.T) {
+	dir := t.TempDir()
+	ex, _ := os.ReadFile("../../config/examples/buoy-winch.toml")
+	a := filepath.Join(dir, "pod-a.toml")
+	b := filepath.Join(dir, "pod-b.toml")
+	os.WriteFile(a, ex, 0o644)
+	os.WriteFile(b, bytes.Replace(bytes.Replace(ex, []byte(`device = "can0"`), []byte(`device = "can1"`), 1), []byte(`"/dev/ttyUSB0"`), []byte(`"/dev/ttyUSB1"`), 1), 0o644)
+	pa, ma := mustLoad(t, a)
+	pb, mb := mustLoad(t, b)
+	s, err := newSession([]*config.Profile{pa, pb}, []*decode.Map{ma, mb}, "simulated", nil, quiet)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(s.devices) != 4 {
+		t.Fatalf("devices = %d, want 4", len(s.devices))
+	}
+	can1 := -1
+	for i, d := range s.devices {
+		if d.spec.Device == "can1" {
+			can1 = i
+		}
+	}
+	frame := func(src int, mv uint16) bus.Message {
+		f := can.Frame{ID: 0x4C0, Length: 7, Data: can.Data{0, byte(mv), byte(mv >> 8), byte(mv), byte(mv >> 8), byte(mv), byte(mv >> 8)}}
+		return bus.Message{T: 1e18, Src: uint16(src), Kind: bus.KindCAN, Frame: f}
+	}
+	s.Deliver([]bus.Message{frame(0, 3700), frame(can1, 3900)})
+	snap := s.eng.Snapshot(time.Unix(0, 1e18))
+	got := map[string]float64{}
+	for _, p := range snap.Packs {
+		if v := p.Cells[0].V; v != nil {
+			got[p.ID] = float64(*v)
+		}
+	}
+	if got["pod-a"] != 3.7 || got["pod-b"] != 3.9 {
+		t.Errorf("cell 1 per pack = %v, want pod-a 3.7, pod-b 3.9", got)
 	}
 }
