@@ -12,6 +12,7 @@ import (
 	"os"
 	"path/filepath"
 	"reflect"
+	"runtime"
 	"strings"
 	"testing"
 	"time"
@@ -497,5 +498,35 @@ func TestBusy(t *testing.T) {
 	defer r.Close()
 	if r.Recovered() != nil {
 		t.Error("recovery noted for a file being written")
+	}
+}
+
+// TestOddPath: characters that mean something in a SQLite URI (space, %,
+// #, ?) and non-ASCII letters reach the right file.
+func TestOddPath(t *testing.T) {
+	name := "rec 50% #1 ?x Zelle ä.db"
+	if runtime.GOOS == "windows" {
+		name = "rec 50% #1 Zelle ä.db" // ? is not allowed in Windows names
+	}
+	path := filepath.Join(t.TempDir(), name)
+	w, err := Create(path, testMeta, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	w.Write([]bus.Message{{T: 1, Kind: bus.KindLine, Text: "x"}})
+	if err := w.Close(); err != nil {
+		t.Fatal(err)
+	}
+	entries, _ := os.ReadDir(filepath.Dir(path))
+	if len(entries) != 1 || entries[0].Name() != name {
+		t.Fatalf("directory holds %v, want only %q", entries, name)
+	}
+	r, err := Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer r.Close()
+	if n, _ := r.Count(); n != 1 {
+		t.Errorf("%d messages", n)
 	}
 }
