@@ -21,6 +21,9 @@ func (ps *packState) apply(msg *bus.Message, ids *uint64) {
 		return
 	}
 	t := msg.T
+	if t > ps.dataT {
+		ps.dataT = t
+	}
 	// Data time reaching the next grid point runs the aggregate tick; data
 	// time stepping back more than a second behind the last tick (a source
 	// restarted its clock) restarts the grid there.

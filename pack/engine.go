@@ -158,11 +158,14 @@ func (e *Engine) Snapshot(serverTime time.Time) *Snapshot {
 		Mode:       e.opt.Mode,
 		Packs:      make([]PackSnapshot, 0, len(e.packs)),
 	}
-	now := e.dataT
-	if e.opt.WallClockAges && serverTime.UnixNano() > now {
-		now = serverTime.UnixNano()
-	}
 	for _, ps := range e.packs {
+		now := ps.dataT
+		if now == 0 {
+			now = e.dataT
+		}
+		if e.opt.WallClockAges && serverTime.UnixNano() > now {
+			now = serverTime.UnixNano()
+		}
 		s.Packs = append(s.Packs, ps.snapshot(now, e.status))
 	}
 	return s

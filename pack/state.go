@@ -111,6 +111,10 @@ type packState struct {
 	slots  []decode.Slot
 	srcMap []int // engine source → profile source; nil = identity
 	nsrc   int
+	// dataT is the latest data time of this pack's own messages: each pack
+	// is judged on its own data, so another pack's (or simulator's) clock
+	// running ahead never makes this pack's readings look stale.
+	dataT int64
 
 	cellSlot   []int32 // by cell number − 1, −1 none
 	balSlot    []int32
@@ -360,6 +364,7 @@ func restartReason(old, nw *config.Profile) string {
 // counters, timers (by limit and subject), alarms and trends over.
 func (ps *packState) swapped(m *decode.Map) *packState {
 	np := newPackState(ps.id, m, ps.srcMap)
+	np.dataT = ps.dataT
 	for i, s := range ps.slots {
 		j, ok := m.SlotIndex(s.Name)
 		if !ok {

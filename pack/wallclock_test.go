@@ -32,3 +32,28 @@ func TestWallClockAges(t *testing.T) {
 		}
 	}
 }
+
+// TestPackOwnDataTime: each pack is judged on its own data time, so a second
+// pack whose clock runs ahead (another simulator, another gateway) does not
+// make the first pack's readings stale.
+func TestPackOwnDataTime(t *testing.T) {
+	m := loadMap(t, "")
+	e := NewEngine(Options{Mode: "simulated"})
+	// pack a on engine sources 0 and 1, pack b on 2 and 3
+	if err := e.AddPack("a", m, []int{0, 1, -1, -1}); err != nil {
+		t.Fatal(err)
+	}
+	if err := e.AddPack("b", m, []int{-1, -1, 0, 1}); err != nil {
+		t.Fatal(err)
+	}
+	a := canMsg(epoch, 0x4D0, 0xFF, 0x38, 0x12, 0x50, 0x00, 0x01, 0x02, 0x00)
+	b := canMsg(epoch+7*sec, 0x4D0, 0xFF, 0x38, 0x12, 0x50, 0x00, 0x01, 0x02, 0x00)
+	b.Src = 2
+	e.Deliver([]bus.Message{a, b})
+	snap := e.Snapshot(time.Unix(0, epoch+7*sec))
+	for _, p := range snap.Packs {
+		if p.Current == nil {
+			t.Errorf("pack %s: current stale although it is the pack's latest reading", p.ID)
+		}
+	}
+}
