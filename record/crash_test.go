@@ -28,7 +28,7 @@ const crashBatch = 8
 // crashChild records frame i carrying i (data time = wall time) at about
 // 8,000 frames/s, a saturated bus, and after each batch prints
 // "<last frame index> <its data time> <messages committed>". It runs until
-// killed (or 60 s as a safety net).
+// killed (or 30 s as a safety net), and stops at once if recording fails.
 func crashChild() int {
 	path := os.Getenv(crashChildEnv)
 	w, err := Create(path, Meta{Tool: "packwatch", Version: "crash-test", Mode: "live"}, Options{})
@@ -37,8 +37,12 @@ func crashChild() int {
 		return 2
 	}
 	batch := make([]bus.Message, crashBatch)
-	end := time.Now().Add(time.Minute)
+	end := time.Now().Add(30 * time.Second)
 	for i := 0; time.Now().Before(end); {
+		if err := w.Err(); err != nil {
+			fmt.Fprintln(os.Stderr, "crash child:", err)
+			return 3
+		}
 		for j := range batch {
 			batch[j] = bus.Message{T: time.Now().UnixNano(), Kind: bus.KindCAN,
 				Frame: can.Frame{ID: 0x100 + uint32(i%4), Length: 8}}
@@ -112,9 +116,9 @@ func crashTrial(t *testing.T, killCommitted, killWritten int) {
 			killed = true
 		}
 	}
-	cmd.Wait()
+	werr := cmd.Wait()
 	if !killed {
-		t.Fatalf("child ended before the kill point (last frame %d, %d committed)", lastI, committed)
+		t.Fatalf("child ended before the kill point (last frame %d, %d committed): %v", lastI, committed, werr)
 	}
 
 	// Integrity, read-only so that nothing is checkpointed before Open.
