@@ -25,10 +25,12 @@ type reloader struct {
 	wg       sync.WaitGroup
 	// reloaded, if set, is called after each reload attempt (tests).
 	reloaded func(id string, err error)
+	// watching is closed once the watches are in place.
+	watching chan struct{}
 }
 
 func newReloader(s *session, log *slog.Logger) *reloader {
-	return &reloader{s: s, log: log, debounce: 300 * time.Millisecond}
+	return &reloader{s: s, log: log, debounce: 300 * time.Millisecond, watching: make(chan struct{})}
 }
 
 // run watches until ctx ends; wait returns when it has.
@@ -38,6 +40,7 @@ func (r *reloader) run(ctx context.Context) {
 	w, err := fsnotify.NewWatcher()
 	if err != nil {
 		r.log.Warn("profile reload off", "err", err)
+		close(r.watching)
 		return
 	}
 	defer w.Close()
@@ -55,6 +58,7 @@ func (r *reloader) run(ctx context.Context) {
 			r.log.Warn("profile reload off", "file", abs, "err", err)
 		}
 	}
+	close(r.watching)
 	pending := map[string]bool{}
 	timer := time.NewTimer(time.Hour)
 	timer.Stop()

@@ -84,20 +84,17 @@ func TestReload(t *testing.T) {
 	r.reloaded = func(_ string, err error) { done <- err }
 	ctx, cancel := context.WithCancel(context.Background())
 	defer func() { cancel(); r.wait() }()
-	ready := make(chan struct{})
-	go func() { close(ready); r.run(ctx) }()
-	<-ready
+	go r.run(ctx)
+	<-r.watching
 
 	wait := func() error {
 		t.Helper()
-		for {
-			select {
-			case err := <-done:
-				return err
-			case <-time.After(10 * time.Second):
-				// keep touching the file: the watcher may have been added after the first write
-				os.Chtimes(path, time.Now(), time.Now())
-			}
+		select {
+		case err := <-done:
+			return err
+		case <-time.After(60 * time.Second):
+			t.Fatal("no reload within 60 s of saving the profile")
+			return nil
 		}
 	}
 	// a valid change: a new name
