@@ -11,9 +11,11 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+	"time"
 
 	"packwatch/analyze"
 	"packwatch/bus"
+	"packwatch/check"
 	"packwatch/config"
 	"packwatch/decode"
 	"packwatch/record"
@@ -95,8 +97,31 @@ func runReport(ctx context.Context, args []string, stdout, stderr io.Writer) int
 	}
 	if !*asJSON {
 		summary(stdout, rep)
+		recordedChecks(stdout, pos[0])
 	}
 	return exitOK
+}
+
+// recordedChecks lists the pre-flight check results a recording holds, each
+// verified against its hash. A capture holds none.
+func recordedChecks(w io.Writer, path string) {
+	r, err := record.Open(path)
+	if err != nil {
+		return // a capture, or a file analyse already reported
+	}
+	defer r.Close()
+	checks, err := check.RecordedChecks(r)
+	if err != nil || len(checks) == 0 {
+		return
+	}
+	fmt.Fprintf(w, "pre-flight checks recorded in this session: %d\n", len(checks))
+	for _, c := range checks {
+		state := "record intact"
+		if c.Err != nil {
+			state = "RECORD DOES NOT MATCH ITS HASH: " + c.Err.Error()
+		}
+		fmt.Fprintf(w, "  %s  %s (%s)\n", time.Unix(0, c.T).UTC().Format(time.RFC3339), c.Text, state)
+	}
 }
 
 func writeJSON(w io.Writer, rep *analyze.Report) error {
