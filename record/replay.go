@@ -54,7 +54,7 @@ type Replay struct {
 	last       int64
 	wake       chan struct{}
 
-	onWait func(paused bool, d time.Duration) // test hook: Run is about to block
+	onWait func(paused bool, d time.Duration) // test hook: Run is about to block, its timer set
 }
 
 // errSeek aborts a scan when a seek arrives.
@@ -271,7 +271,8 @@ func (p *Replay) run(ctx context.Context, sink bus.Sink) error {
 	for {
 		p.mu.Lock()
 		seeking := gen != p.seekGen
-		gen, to := p.seekGen, p.seekTo
+		gen = p.seekGen
+		to := p.seekTo
 		p.mu.Unlock()
 		if seeking {
 			if p.opt.OnSeek != nil {
@@ -373,11 +374,12 @@ func (p *Replay) pace(ctx context.Context, sink bus.Sink, batch []bus.Message, g
 			continue
 		}
 		p.mu.Unlock()
-		if p.onWait != nil {
+		timer := p.clock.After(wait)
+		if p.onWait != nil { // after the timer exists: a test may advance its clock now
 			p.onWait(false, wait)
 		}
 		select {
-		case <-p.clock.After(wait):
+		case <-timer:
 		case <-p.wake:
 		case <-ctx.Done():
 			return ctx.Err()
