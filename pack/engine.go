@@ -54,6 +54,7 @@ type Engine struct {
 	packs   []*packState
 	status  []srcStatus // by engine source index
 	dataT   int64
+	lag     int64 // recent data-time span of one delivery, ns
 	seq     uint64
 	alarmID uint64  // last alarm id handed out, engine-wide
 	bus     busPrev // rate bookkeeping of BusView
@@ -115,6 +116,20 @@ func (e *Engine) Deliver(batch []bus.Message) {
 	if e.opt.RawSink != nil {
 		e.opt.RawSink.Write(batch)
 	}
+	if n := len(batch); n > 0 {
+		// how much data time one delivery spans: a simulator at high speed
+		// or a replay delivers seconds at once, so packs fed by different
+		// sources can lag each other by that much
+		lo, hi := batch[0].T, batch[0].T
+		for i := 1; i < n; i++ {
+			lo, hi = min(lo, batch[i].T), max(hi, batch[i].T)
+		}
+		if span := hi - lo; span > e.lag {
+			e.lag = span
+		} else {
+			e.lag -= (e.lag - span) / 16
+		}
+	}
 	for i := range batch {
 		msg := &batch[i]
 		if msg.T > e.dataT {
@@ -159,10 +174,10 @@ func (e *Engine) Snapshot(serverTime time.Time) *Snapshot {
 		Packs:      make([]PackSnapshot, 0, len(e.packs)),
 	}
 	for _, ps := range e.packs {
-		now := ps.dataT
-		if now == 0 {
-			now = e.dataT
-		}
+		// A pack is judged at the session's data time, less the span of a
+		// delivery (another pack's source may be that far ahead of this
+		// pack's), but never before its own latest message.
+		now := max(ps.dataT, e.dataT-e.lag)
 		if e.opt.WallClockAges && serverTime.UnixNano() > now {
 			now = serverTime.UnixNano()
 		}
@@ -205,7 +220,7 @@ func (e *Engine) Reset() {
 		np.profErr = ps.profErr
 		e.packs[i] = np
 	}
-	e.dataT = 0
+	e.dataT, e.lag = 0, 0
 	e.bus = busPrev{}
 }
 

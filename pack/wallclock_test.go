@@ -33,9 +33,9 @@ func TestWallClockAges(t *testing.T) {
 	}
 }
 
-// TestPackOwnDataTime: each pack is judged on its own data time, so a second
-// pack whose clock runs ahead (another simulator, another gateway) does not
-// make the first pack's readings stale.
+// TestPackOwnDataTime: a second pack whose source delivers seconds of data at
+// once (another simulator) does not make the first pack's readings stale,
+// but a pack that stays silent for longer than that does turn stale.
 func TestPackOwnDataTime(t *testing.T) {
 	m := loadMap(t, "")
 	e := NewEngine(Options{Mode: "simulated"})
@@ -46,14 +46,31 @@ func TestPackOwnDataTime(t *testing.T) {
 	if err := e.AddPack("b", m, []int{-1, -1, 0, 1}); err != nil {
 		t.Fatal(err)
 	}
-	a := canMsg(epoch, 0x4D0, 0xFF, 0x38, 0x12, 0x50, 0x00, 0x01, 0x02, 0x00)
-	b := canMsg(epoch+7*sec, 0x4D0, 0xFF, 0x38, 0x12, 0x50, 0x00, 0x01, 0x02, 0x00)
-	b.Src = 2
-	e.Deliver([]bus.Message{a, b})
-	snap := e.Snapshot(time.Unix(0, epoch+7*sec))
+	cur := func(t int64, src uint16) bus.Message {
+		m := canMsg(t, 0x4D0, 0xFF, 0x38, 0x12, 0x50, 0x00, 0x01, 0x02, 0x00)
+		m.Src = src
+		return m
+	}
+	// each simulator delivers 7 s of data at once; b's batch ends later
+	var batchA, batchB []bus.Message
+	for t := int64(0); t <= 7*sec; t += 50 * ms {
+		batchA = append(batchA, cur(epoch+t, 0))
+		batchB = append(batchB, cur(epoch+t+3*sec, 2))
+	}
+	e.Deliver(batchA)
+	e.Deliver(batchB)
+	snap := e.Snapshot(time.Unix(0, epoch+10*sec))
 	for _, p := range snap.Packs {
 		if p.Current == nil {
-			t.Errorf("pack %s: current stale although it is the pack's latest reading", p.ID)
+			t.Errorf("pack %s: current stale although its source is only one delivery behind", p.ID)
 		}
+	}
+	// b goes on in small deliveries for 30 s; a says nothing more
+	for t := 10 * sec; t <= 40*sec; t += 50 * ms {
+		e.Deliver([]bus.Message{cur(epoch+t, 2)})
+	}
+	snap = e.Snapshot(time.Unix(0, epoch+40*sec))
+	if a := snap.Packs[0]; a.Current != nil {
+		t.Errorf("pack a silent for 33 s still shows a current")
 	}
 }
