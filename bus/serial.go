@@ -15,6 +15,18 @@ import (
 
 // serialMode checks and converts the line settings of spec.
 func serialMode(spec Spec) (*serial.Mode, error) {
+	return SerialMode(spec.Baud, spec.DataBits, spec.Parity, spec.StopBits)
+}
+
+// SerialMode checks and converts serial line settings as a profile writes
+// them (parity none, even, odd, mark or space; stop bits "1", "1.5" or "2";
+// "" for the defaults N and 1) for go.bug.st/serial. A data-bits value of 0
+// means 8.
+func SerialMode(baud, dataBits int, parity, stopBits string) (*serial.Mode, error) {
+	if dataBits == 0 {
+		dataBits = 8
+	}
+	spec := Spec{Baud: baud, DataBits: dataBits, Parity: parity, StopBits: stopBits}
 	m := &serial.Mode{BaudRate: spec.Baud, DataBits: spec.DataBits}
 	if spec.Baud <= 0 {
 		return nil, fmt.Errorf("baud %d", spec.Baud)

@@ -17,6 +17,7 @@ import (
 
 	"go.bug.st/serial"
 
+	"packwatch/bus"
 	"packwatch/config"
 	"packwatch/sim"
 )
@@ -322,33 +323,9 @@ func drainPort(ctx context.Context, port serial.Port) <-chan struct{} {
 // serialModeOf takes a source's line settings (data bits, parity, stop
 // bits; defaults 8N1) for the simulated end of the line.
 func serialModeOf(src config.Source, baud int) (*serial.Mode, error) {
-	m := &serial.Mode{BaudRate: baud, DataBits: src.DataBits}
-	if m.DataBits == 0 {
-		m.DataBits = 8
-	}
-	switch strings.ToLower(src.Parity) {
-	case "", "none", "n":
-		m.Parity = serial.NoParity
-	case "even", "e":
-		m.Parity = serial.EvenParity
-	case "odd", "o":
-		m.Parity = serial.OddParity
-	case "mark", "m":
-		m.Parity = serial.MarkParity
-	case "space", "s":
-		m.Parity = serial.SpaceParity
-	default:
-		return nil, fmt.Errorf("source %s: parity %q", src.Name, src.Parity)
-	}
-	switch src.StopBits {
-	case "", "1":
-		m.StopBits = serial.OneStopBit
-	case "1.5":
-		m.StopBits = serial.OnePointFiveStopBits
-	case "2":
-		m.StopBits = serial.TwoStopBits
-	default:
-		return nil, fmt.Errorf("source %s: stop bits %q", src.Name, src.StopBits)
+	m, err := bus.SerialMode(baud, src.DataBits, src.Parity, src.StopBits)
+	if err != nil {
+		return nil, fmt.Errorf("source %s: %w", src.Name, err)
 	}
 	return m, nil
 }
