@@ -388,23 +388,9 @@ func expand(p *Profile, r *reporter) (*Expanded, bool) {
 				}
 			}
 			{
-				enum, err := convEnum(f.Enum)
-				if err != nil {
-					bad(path+".enum", ErrType, `write enum = { 0 = "idle", 1 = "charging" }`, "%v", err)
+				scale, enum, rng, ok := fieldValue(f, path, bad)
+				if !ok {
 					continue
-				}
-				rng, rerr := fieldRange(f)
-				if rerr != nil {
-					bad(path+".range", ErrRange, "range = [min, max] with min below max, in the value's unit", "%v", rerr)
-					continue
-				}
-				scale := 1.0
-				if f.Scale != nil {
-					scale = *f.Scale
-					if scale == 0 {
-						bad(path+".scale", ErrRange, "value = raw × scale + offset; a negative scale flips a sign", "scale must not be 0")
-						continue
-					}
 				}
 				period := periodMs * span
 				if f.PeriodMs > 0 {
@@ -500,22 +486,8 @@ func expand(p *Profile, r *reporter) (*Expanded, bool) {
 				bad(fpath+".bind", ErrBinding, "see \"Bindings\" in the README", "bind %q: %v", f.Bind, err)
 				continue
 			}
-			scale := 1.0
-			if f.Scale != nil {
-				scale = *f.Scale
-			}
-			if scale == 0 {
-				bad(fpath+".scale", ErrRange, "value = number × scale + offset", "scale must not be 0")
-				continue
-			}
-			enum, err := convEnum(f.Enum)
-			if err != nil {
-				bad(fpath+".enum", ErrType, `write enum = { 0 = "idle" }`, "%v", err)
-				continue
-			}
-			rng, rerr := fieldRange(f)
-			if rerr != nil {
-				bad(fpath+".range", ErrRange, "range = [min, max] with min below max", "%v", rerr)
+			scale, enum, rng, ok := fieldValue(f, fpath, bad)
+			if !ok {
 				continue
 			}
 			base := 1
@@ -573,6 +545,30 @@ func expand(p *Profile, r *reporter) (*Expanded, bool) {
 	}
 	sortBindings(exp.Bindings)
 	return exp, ok
+}
+
+// fieldValue checks a field's conversion keys: scale (not 0), enum (whole
+// number codes) and range (min below max); each problem is reported at its key.
+func fieldValue(f *Field, path string, bad func(path string, kind error, hint, format string, args ...any)) (scale float64, enum map[int64]string, rng *[2]float64, ok bool) {
+	scale = 1
+	if f.Scale != nil {
+		scale = *f.Scale
+	}
+	if scale == 0 {
+		bad(path+".scale", ErrRange, "value = raw × scale + offset; a negative scale flips a sign", "scale must not be 0")
+		return 0, nil, nil, false
+	}
+	enum, err := convEnum(f.Enum)
+	if err != nil {
+		bad(path+".enum", ErrType, `write enum = { 0 = "idle", 1 = "charging" }`, "%v", err)
+		return 0, nil, nil, false
+	}
+	rng, err = fieldRange(f)
+	if err != nil {
+		bad(path+".range", ErrRange, "range = [min, max] with min below max, in the value's unit", "%v", err)
+		return 0, nil, nil, false
+	}
+	return scale, enum, rng, true
 }
 
 func groupNames(re *regexp.Regexp) []string {
