@@ -220,7 +220,7 @@ func TestBrowserEndToEnd(t *testing.T) {
 	eng.mu.Lock()
 	eng.twoPacks = true
 	eng.mu.Unlock()
-	waitJS(t, ctx, "two pack tabs", `document.querySelectorAll('#packs .packtab').length === 2 && document.querySelectorAll('#packs .packtab')[1].textContent.includes('Test pack B')`, 30*time.Second)
+	waitJS(t, ctx, "two pack tabs", `document.querySelectorAll('#packs .packtab').length === 2 && document.querySelectorAll('#packs .packtab')[1].textContent.includes('Test pack B') && document.querySelectorAll('#packs .pt-detail')[1].textContent.startsWith('SOC ') && !document.querySelectorAll('#packs .pt-detail')[1].hidden`, 30*time.Second)
 	if err := chromedp.Do(ctx, chromedp.Click(chromedp.CSS(`#packs .packtab:nth-child(2)`))); err != nil {
 		t.Fatal(err)
 	}

@@ -257,14 +257,26 @@
       s.packs.forEach(function (p, i) {
         var b = el("button", "btn packtab");
         b.type = "button";
+        b.appendChild(el("span", "pt-name"));
+        b.appendChild(el("span", "pt-detail"));
         b.addEventListener("click", function () { state.packIdx = i; state.cellKey = ""; state.chartKey = ""; render(); });
         nav.appendChild(b);
       });
       nav.setAttribute("data-key", key);
     }
+    var many = s.packs.length > 1;
     s.packs.forEach(function (p, i) {
       var b = nav.children[i];
-      b.textContent = (p.name || p.id) + " \u00b7 " + (STATE_WORD[p.state] || p.state);
+      b.children[0].textContent = (p.name || p.id) + " \u00b7 " + (STATE_WORD[p.state] || p.state);
+      // with several packs each tab is an overview tile: state of charge and
+      // the nearest trip (margins come nearest first)
+      var d = "";
+      if (many) {
+        var m = (p.margins || []).filter(function (x) { return isNum(x.margin); })[0];
+        d = "SOC " + fmt(p.soc && p.soc.pct, 0, "%") + (m ? " \u00b7 nearest: " + m.label + (m.subject ? " (" + m.subject + ")" : "") + " " + fmt(m.margin, m.unit === "V" ? 3 : 1, m.unit) : "");
+      }
+      b.children[1].textContent = d;
+      b.children[1].hidden = !many;
       b.className = "btn packtab st-" + p.state + (i === state.packIdx ? " sel" : "");
       b.setAttribute("aria-pressed", i === state.packIdx ? "true" : "false");
     });
