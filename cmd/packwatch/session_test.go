@@ -280,11 +280,27 @@ func TestDemoRecordReplay(t *testing.T) {
 
 	ctx2, cancel2 := context.WithCancel(context.Background())
 	defer cancel2()
-	url, _, errb, code = startCLI(t, ctx2, "replay", db, "--speed", "max", "--addr", "127.0.0.1:0")
+	url, _, errb, code = startCLI(t, ctx2, "replay", db, "--speed", "10", "--addr", "127.0.0.1:0")
 	snap := waitState(t, url, func(s *pack.Snapshot) bool { return len(s.Packs) == 1 && s.Packs[0].CellStats.Reporting == 12 })
 	if snap.Mode != "replay" {
 		t.Errorf("replay mode = %q", snap.Mode)
 	}
+	// at 10× the replay moves on; a seek back to 0.2 s from the start (as the
+	// page's seek does) resets the engine and fast-forwards there
+	ahead := waitState(t, url, func(s *pack.Snapshot) bool { return float64(s.DataT) > float64(snap.DataT)+1 })
+	req, _ := http.NewRequest("POST", url+"api/replay/seek?offset_s=0.2", nil)
+	req.Header.Set("Origin", strings.TrimSuffix(url, "/"))
+	resp, err := http.DefaultClient.Do(req)
+	if err != nil {
+		t.Fatal(err)
+	}
+	resp.Body.Close()
+	if resp.StatusCode/100 != 2 {
+		t.Fatalf("seek: %s", resp.Status)
+	}
+	waitState(t, url, func(s *pack.Snapshot) bool {
+		return float64(s.DataT) < float64(ahead.DataT)-0.5 && len(s.Packs) == 1 && s.Packs[0].CellStats.Reporting > 0
+	})
 	cancel2()
 	if c := <-code; c != 0 {
 		t.Fatalf("replay exit %d: %s", c, errb.String())
