@@ -2,10 +2,12 @@ package main
 
 import (
 	"context"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
 	"log/slog"
+	"net/http"
 	"os"
 	"os/exec"
 	"runtime"
@@ -70,7 +72,26 @@ func runRecord(ctx context.Context, args []string, stdout, stderr io.Writer) int
 		defer cancel()
 	}
 	fmt.Fprintf(stdout, "recording %s to %s; Ctrl-C stops\n", p.Pack.Name, *out)
+	// no page: take a snapshot a second so trips and warnings become events
+	alog := newAlarmLog(rec)
+	tickDone := make(chan struct{})
+	tctx, tcancel := context.WithCancel(ctx)
+	go func() {
+		defer close(tickDone)
+		tk := time.NewTicker(time.Second)
+		defer tk.Stop()
+		for {
+			select {
+			case <-tctx.Done():
+				return
+			case now := <-tk.C:
+				alog.observe(s.eng.Snapshot(now))
+			}
+		}
+	}()
 	err = s.runDevices(ctx)
+	tcancel()
+	<-tickDone
 	s.stats.flush()
 	if cerr := rec.Close(); cerr != nil && err == nil {
 		err = cerr
@@ -277,6 +298,12 @@ func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) int
 		return exitBad
 	}
 	rp := record.NewReplay(r, record.ReplayOptions{Speed: speed, Hold: true, OnSeek: func(int64) { s.eng.Reset() }})
+	events, err := replayEvents(r)
+	if err != nil {
+		fmt.Fprintln(stderr, "replay:", err)
+		return exitBad
+	}
+	s.extra = map[string]http.Handler{"/api/replay/events": events}
 	fmt.Fprintf(stdout, "replaying %s (REPLAY, not live data)\n", pos[0])
 	err = runSessionWith(ctx, s, &f, "replay", rp, func(ctx context.Context) error { return rp.Run(ctx, s) }, stdout)
 	if err != nil {
@@ -284,4 +311,40 @@ func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) int
 		return exitBad
 	}
 	return exitOK
+}
+
+// replayEvents serves the recording's events for the replay panel's
+// timeline: each with its data time and its offset from the recording's
+// first message (what the page's seek takes).
+func replayEvents(r *record.Reader) (http.Handler, error) {
+	first, _, _, err := r.Span()
+	if err != nil {
+		return nil, err
+	}
+	evs, err := r.Events()
+	if err != nil {
+		return nil, err
+	}
+	type event struct {
+		T       float64 `json:"t"`
+		OffsetS float64 `json:"offset_s"`
+		Kind    string  `json:"kind"`
+		Text    string  `json:"text"`
+	}
+	list := make([]event, 0, len(evs))
+	for _, e := range evs {
+		list = append(list, event{T: float64(e.T) / 1e9, OffsetS: max(0, float64(e.T-first)/1e9), Kind: e.Kind, Text: e.Text})
+	}
+	body, err := json.Marshal(map[string]any{"start_t": float64(first) / 1e9, "events": list})
+	if err != nil {
+		return nil, err
+	}
+	return http.HandlerFunc(func(w http.ResponseWriter, req *http.Request) {
+		if req.Method != http.MethodGet {
+			http.Error(w, "GET only", http.StatusMethodNotAllowed)
+			return
+		}
+		w.Header().Set("Content-Type", "application/json")
+		w.Write(body)
+	}), nil
 }

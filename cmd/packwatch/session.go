@@ -50,6 +50,7 @@ type session struct {
 	mu      sync.Mutex // guards each packEntry's prof and m (reload swaps them)
 	stats   *statsRecorder
 	tap     *check.RawTap
+	extra   map[string]http.Handler // more routes (replay's events)
 }
 
 // profileOf returns the profile in use for a pack id, nil for none.
@@ -307,6 +308,9 @@ func runSession(ctx context.Context, s *session, f *serveFlags, mode string, dat
 func runSessionWith(ctx context.Context, s *session, f *serveFlags, mode string, replay server.Replay, data func(ctx context.Context) error, stdout io.Writer) error {
 	mh := metrics.NewHandler(metrics.Options{Version: version, Logger: s.log})
 	handlers := map[string]http.Handler{"/metrics": mh}
+	for pattern, h := range s.extra {
+		handlers[pattern] = h
+	}
 	checkPanel := false
 	if hist, err := openCheckHistory(f.checkHistory); err != nil {
 		s.log.Warn("pre-flight check panel off", "err", err)
@@ -323,8 +327,13 @@ func runSessionWith(ctx context.Context, s *session, f *serveFlags, mode string,
 			checkPanel = true
 		}
 	}
+	alog := newAlarmLog(s.rec)
+	observe := func(snap *pack.Snapshot) {
+		mh.Observe(snap)
+		alog.observe(snap)
+	}
 	srv, err := server.New(server.Options{
-		Replay: replay, OnSnapshot: mh.Observe, Handlers: handlers, CheckPanel: checkPanel,
+		Replay: replay, OnSnapshot: observe, Handlers: handlers, CheckPanel: checkPanel,
 		Addr: f.addr, Engine: s.eng, Token: f.token, TLSCert: f.tlsCert, TLSKey: f.tlsKey,
 		BusView:     func() any { return s.eng.BusView() },
 		ProfileJSON: s.profileJSON,

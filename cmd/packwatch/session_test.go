@@ -285,6 +285,30 @@ func TestDemoRecordReplay(t *testing.T) {
 	if snap.Mode != "replay" {
 		t.Errorf("replay mode = %q", snap.Mode)
 	}
+	// the page's timeline lists the recording's events with their offsets
+	resp0, err := http.Get(url + "api/replay/events")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var tl struct {
+		StartT float64 `json:"start_t"`
+		Events []struct {
+			OffsetS float64 `json:"offset_s"`
+			Kind    string  `json:"kind"`
+			Text    string  `json:"text"`
+		} `json:"events"`
+	}
+	json.NewDecoder(resp0.Body).Decode(&tl)
+	resp0.Body.Close()
+	connects := 0
+	for _, e := range tl.Events {
+		if e.Kind == "connect" && e.OffsetS >= 0 {
+			connects++
+		}
+	}
+	if tl.StartT == 0 || connects != 2 {
+		t.Errorf("replay events: start %v, %d connect events (want the demo's 2 sources): %+v", tl.StartT, connects, tl.Events)
+	}
 	// at 10× the replay moves on; a seek back to 0.2 s from the start (as the
 	// page's seek does) resets the engine and fast-forwards there
 	ahead := waitState(t, url, func(s *pack.Snapshot) bool { return float64(s.DataT) > float64(snap.DataT)+1 })

@@ -95,6 +95,34 @@
     if (h.mode) root.setAttribute("data-mode", h.mode);
     $("replay").hidden = !h.replay;
     $("bus").hidden = !h.bus;
+    if (h.replay && !state.replayEvents) loadReplayEvents();
+  }
+
+  // the recording's events as a timeline: a button each, which seeks there
+  function loadReplayEvents() {
+    state.replayEvents = true;
+    fetch("/api/replay/events", { credentials: "same-origin" }).then(function (r) {
+      return r.ok ? r.json() : null;
+    }).then(function (d) {
+      if (!d || !d.events || !d.events.length) return;
+      var list = $("replay-events");
+      list.textContent = "";
+      d.events.forEach(function (e) {
+        var li = el("li", "rev rev-" + e.kind);
+        var b = el("button", "btn rev-go", dur(e.offset_s) || "0 s");
+        b.type = "button";
+        b.setAttribute("data-offset", String(e.offset_s));
+        b.addEventListener("click", function () {
+          $("replay-seek").value = Math.floor(e.offset_s);
+          fetch("/api/replay/seek?offset_s=" + encodeURIComponent(e.offset_s), { method: "POST", credentials: "same-origin" });
+        });
+        li.appendChild(b);
+        li.appendChild(el("span", "rev-kind", e.kind));
+        li.appendChild(el("span", "rev-text", e.text));
+        list.appendChild(li);
+      });
+      $("replay-events-h").hidden = false;
+    }).catch(function () { state.replayEvents = false; });
   }
 
   // ---------- history and charts ----------
