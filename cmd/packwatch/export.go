@@ -209,6 +209,8 @@ type csvExport struct {
 	rec     []string
 	stepEnd int64
 	acc     []acc
+	cache   []string // formatted latest value per slot
+	cacheT  []int64  // data time of the value in cache
 }
 
 // acc accumulates one binding over one step.
@@ -236,6 +238,7 @@ func newCSVExport(m *decode.Map, keep []bool, w io.Writer, start, step int64, st
 	}
 	c.w.Write(header)
 	c.acc = make([]acc, len(m.Slots()))
+	c.cache, c.cacheT = make([]string, len(m.Slots())), make([]int64, len(m.Slots()))
 	return c
 }
 
@@ -280,10 +283,14 @@ func (c *csvExport) write(msg *bus.Message) {
 	}
 	if c.step == 0 {
 		c.row(msg.T, func(s int32) string {
-			if c.fresh(s, msg.T) {
-				return c.value(s, c.v.V[s])
+			if !c.fresh(s, msg.T) {
+				return ""
 			}
-			return ""
+			// most columns did not change since the last row: format once
+			if c.cacheT[s] != c.v.T[s] {
+				c.cache[s], c.cacheT[s] = c.value(s, c.v.V[s]), c.v.T[s]
+			}
+			return c.cache[s]
 		})
 		return
 	}
