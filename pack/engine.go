@@ -55,6 +55,7 @@ type Engine struct {
 	status  []srcStatus // by engine source index
 	dataT   int64
 	lag     int64 // recent data-time span of one delivery, ns
+	rec     *RecordingSnap
 	seq     uint64
 	alarmID uint64  // last alarm id handed out, engine-wide
 	bus     busPrev // rate bookkeeping of BusView
@@ -173,6 +174,10 @@ func (e *Engine) Snapshot(serverTime time.Time) *Snapshot {
 		Mode:       e.opt.Mode,
 		Packs:      make([]PackSnapshot, 0, len(e.packs)),
 	}
+	if e.rec != nil {
+		r := *e.rec
+		s.Recording = &r
+	}
 	for _, ps := range e.packs {
 		// A pack is judged at the session's data time, less the span of a
 		// delivery (another pack's source may be that far ahead of this
@@ -246,6 +251,14 @@ func (e *Engine) Swap(packID string, m *decode.Map) error {
 		return nil
 	}
 	return fmt.Errorf("swap: %w %q", ErrNoPack, packID)
+}
+
+// SetRecording sets the recording's state that snapshots carry (nil: no
+// recording).
+func (e *Engine) SetRecording(r *RecordingSnap) {
+	e.mu.Lock()
+	defer e.mu.Unlock()
+	e.rec = r
 }
 
 // SetProfileError shows msg as the pack's profile error (a reload that

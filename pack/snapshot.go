@@ -13,6 +13,17 @@ type Snapshot struct {
 	// Mode is "live", "simulated" or "replay"; the page marks anything not live.
 	Mode  string         `json:"mode"`
 	Packs []PackSnapshot `json:"packs"`
+	// Recording is the session's recording, nil when none.
+	Recording *RecordingSnap `json:"recording,omitempty"`
+}
+
+// RecordingSnap is the state of the session's recording, for the page.
+type RecordingSnap struct {
+	File     string `json:"file"`
+	State    string `json:"state"`           // recording | stopped
+	Error    string `json:"error,omitempty"` // why it stopped (disk full, unwritable)
+	Messages uint64 `json:"messages"`        // committed so far
+	Dropped  uint64 `json:"dropped"`         // not recorded (queue overrun, disk full)
 }
 
 // PackSnapshot is one pack's state.

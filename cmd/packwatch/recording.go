@@ -78,6 +78,7 @@ func runRecord(ctx context.Context, args []string, stdout, stderr io.Writer) int
 	tctx, tcancel := context.WithCancel(ctx)
 	go func() {
 		defer close(tickDone)
+		warned := false
 		tk := time.NewTicker(time.Second)
 		defer tk.Stop()
 		for {
@@ -86,6 +87,10 @@ func runRecord(ctx context.Context, args []string, stdout, stderr io.Writer) int
 				return
 			case now := <-tk.C:
 				alog.observe(s.eng.Snapshot(now))
+				if err := rec.Err(); err != nil && !warned {
+					fmt.Fprintf(stderr, "record: recording stopped: %v\n", err)
+					warned = true
+				}
 			}
 		}
 	}()
@@ -304,6 +309,7 @@ func runReplay(ctx context.Context, args []string, stdout, stderr io.Writer) int
 		return exitBad
 	}
 	s.extra = map[string]http.Handler{"/api/replay/events": events}
+	addReview(ctx, s.extra, pos[0], *other, stderr)
 	fmt.Fprintf(stdout, "replaying %s (REPLAY, not live data)\n", pos[0])
 	err = runSessionWith(ctx, s, &f, "replay", rp, func(ctx context.Context) error { return rp.Run(ctx, s) }, stdout)
 	if err != nil {

@@ -344,6 +344,7 @@ func runSessionWith(ctx context.Context, s *session, f *serveFlags, mode string,
 	}
 	g, gctx := errgroup.WithContext(ctx)
 	g.Go(func() error { return srv.Run(gctx) })
+	g.Go(func() error { s.watchRecording(gctx, time.Second); return nil })
 	g.Go(func() error {
 		err := data(gctx)
 		if err != nil && !errors.Is(err, context.Canceled) {
@@ -364,4 +365,33 @@ func runSessionWith(ctx context.Context, s *session, f *serveFlags, mode string,
 		return nil
 	}
 	return err
+}
+
+// watchRecording shows the recording's state on the page once a second, and
+// logs once when it stops (disk full, unwritable path); the live view goes
+// on. It returns when ctx ends.
+func (s *session) watchRecording(ctx context.Context, every time.Duration) {
+	if s.rec == nil {
+		return
+	}
+	tk := time.NewTicker(every)
+	defer tk.Stop()
+	logged := false
+	for {
+		msgs, _ := s.rec.Committed()
+		st := &pack.RecordingSnap{File: s.rec.Path(), State: "recording", Messages: msgs, Dropped: s.rec.Dropped()}
+		if err := s.rec.Err(); err != nil {
+			st.State, st.Error = "stopped", err.Error()
+			if !logged {
+				s.log.Error("recording stopped; the live view goes on", "file", s.rec.Path(), "err", err)
+				logged = true
+			}
+		}
+		s.eng.SetRecording(st)
+		select {
+		case <-ctx.Done():
+			return
+		case <-tk.C:
+		}
+	}
 }

@@ -242,6 +242,7 @@
     m.hidden = mode === "live";
     m.textContent = mode === "replay" ? "REPLAY: RECORDED DATA" : mode === "simulated" ? "SIMULATED DATA" : "";
     if (state.packIdx >= s.packs.length) state.packIdx = 0;
+    renderRecording(s.recording);
     renderPackTabs(s);
     var p = s.packs[state.packIdx];
     if (p) {
@@ -275,6 +276,26 @@
       if ((RANK[st] || 0) > (RANK[w] || 0)) w = st;
     });
     return w;
+  }
+
+  // the session's recording: a small mark while it records, a loud banner
+  // when it stopped (disk full, unwritable) while the live view goes on
+  function renderRecording(r) {
+    var b = $("rec-banner");
+    if (!b) {
+      b = el("p", "rec-banner");
+      b.id = "rec-banner";
+      b.setAttribute("role", "status");
+      var caution = document.querySelector(".caution");
+      caution.parentNode.insertBefore(b, caution.nextSibling);
+    }
+    b.hidden = !r;
+    if (!r) return;
+    var stopped = r.state !== "recording";
+    b.className = "rec-banner" + (stopped ? " rec-stopped" : "");
+    b.textContent = stopped
+      ? "\u2716 RECORDING STOPPED: " + (r.error || "unknown reason") + ". The live view goes on; " + r.messages + " messages were saved in " + r.file + "."
+      : "\u25cf REC " + r.file + " \u00b7 " + r.messages + " messages saved" + (r.dropped ? " \u00b7 " + r.dropped + " dropped" : "");
   }
 
   function renderPackTabs(s) {
