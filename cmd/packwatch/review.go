@@ -74,7 +74,7 @@ func reviewHandlers(ctx context.Context, path, profile string) (map[string]http.
 // reviewBody serves a fixed body; a non-empty name makes it a download.
 func reviewBody(ctype, name string, body []byte) http.Handler {
 	return http.HandlerFunc(func(w http.ResponseWriter, req *http.Request) {
-		if req.Method != http.MethodGet {
+		if req.Method != http.MethodGet && req.Method != http.MethodHead {
 			http.Error(w, "GET only", http.StatusMethodNotAllowed)
 			return
 		}

@@ -204,13 +204,19 @@ func TestReviewPage(t *testing.T) {
 		if !strings.Contains(mode, "REPLAY") {
 			t.Errorf("page not marked REPLAY: %q", mode)
 		}
-		if shot := os.Getenv("PACKWATCH_REVIEW_SHOT"); shot != "" {
-			png, err := chromedp.Run(bctx, chromedp.FullScreenshot(100))
-			if err != nil {
-				t.Fatal(err)
-			}
-			if err := os.WriteFile(shot, png, 0o644); err != nil {
-				t.Fatal(err)
+		// PACKWATCH_REVIEW_SHOT=DIR writes a screenshot of every tab there
+		if dir := os.Getenv("PACKWATCH_REVIEW_SHOT"); dir != "" {
+			for _, tab := range []string{"timeline", "curve", "ica", "resistance", "bursts"} {
+				if _, err := chromedp.Run(bctx, chromedp.Evaluate[bool](`document.querySelector('[data-tab="`+tab+`"]').click(), true`)); err != nil {
+					t.Fatal(err)
+				}
+				png, err := chromedp.Run(bctx, chromedp.FullScreenshot(100))
+				if err != nil {
+					t.Fatal(err)
+				}
+				if err := os.WriteFile(filepath.Join(dir, "review-"+tab+".png"), png, 0o644); err != nil {
+					t.Fatal(err)
+				}
 			}
 		}
 	})
