@@ -138,13 +138,21 @@
     showTab("timeline");
   }
 
+  // an offset as the dashboard's replay panel words it, with the seconds of the charts' axis
+  function when(s) {
+    if (s === null || !isFinite(s)) return "—";
+    if (s < 120) return num(s, 1) + " s";
+    var h = Math.floor(s / 3600), m = Math.floor((s % 3600) / 60);
+    return (h ? h + " h " : "") + m + " min (" + num(s, 0) + " s)";
+  }
+
   function eventsList() {
     var ol = $("events");
     var evs = (events && events.events) || [];
     if (!evs.length) { $("events-none").hidden = false; return; }
     evs.forEach(function (e) {
       var li = el("li");
-      var b = el("button", num(e.offset_s, 1) + " s  " + e.kind + ": " + e.text, "link-btn kind-" + e.kind);
+      var b = el("button", when(e.offset_s) + "  " + e.kind + ": " + e.text, "link-btn kind-" + e.kind);
       b.type = "button";
       b.addEventListener("click", function () { zoomTimeline(e.offset_s); });
       li.appendChild(b);
