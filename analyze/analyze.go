@@ -139,14 +139,17 @@ func Analyze(s *Session, opt Options) *Report {
 		rep.DischargeCapacityAh, rep.DischargeEnergyWh, rep.DischargeMeanA = Num(r.Ah), Num(r.Wh), Num(r.MeanA)
 		if c := pickCharge(runs, d); c >= 0 {
 			rep.ChargeCapacityAh, rep.ChargeEnergyWh = Num(runs[c].Ah), Num(runs[c].Wh)
-			if runs[c].Ah > 0 {
-				rep.CoulombicEff = Num(r.Ah / runs[c].Ah)
-			}
-			if runs[c].Wh > 0 {
-				rep.EnergyEff = Num(r.Wh / runs[c].Wh)
-			}
-			if !r.FromFull || !runs[c].HasTaper {
-				rep.Warnings = append(rep.Warnings, "the efficiencies pair a discharge and a charge that do not both run between full and the same end point: read them with care")
+			// a pair means the same two end points: a discharge from full,
+			// then the next charge, from where it ended, back to full
+			if r.FromFull && runs[c].HasTaper && c > d && !dischargeBetween(runs, d, c) {
+				if runs[c].Ah > 0 {
+					rep.CoulombicEff = Num(r.Ah / runs[c].Ah)
+				}
+				if runs[c].Wh > 0 {
+					rep.EnergyEff = Num(r.Wh / runs[c].Wh)
+				}
+			} else {
+				rep.Warnings = append(rep.Warnings, "no efficiencies: they need a discharge from full followed by a charge from its end back to full, which this recording does not hold")
 			}
 		}
 		kneeAndCutoff(s, ch, r, opt, rep)
@@ -270,6 +273,16 @@ func pickDischarge(runs []Run) int {
 
 // pickCharge pairs a discharge with the charge that follows it (the
 // recharge), else the one before it.
+// dischargeBetween reports whether another discharge lies between runs a and b.
+func dischargeBetween(runs []Run, a, b int) bool {
+	for k := a + 1; k < b; k++ {
+		if runs[k].Kind == Discharge {
+			return true
+		}
+	}
+	return false
+}
+
 func pickCharge(runs []Run, d int) int {
 	for k := d + 1; k < len(runs); k++ {
 		if runs[k].Kind == ChargeCC {
