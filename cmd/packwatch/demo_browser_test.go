@@ -56,15 +56,7 @@ func TestDemoInBrowser(t *testing.T) {
 	go func() {
 		done <- runSession(sctx, s, f, "simulated", func(ctx context.Context) error { return simulator.Run(ctx, s) }, &out)
 	}()
-	url := ""
-	for deadline := time.Now().Add(30 * time.Second); url == "" && time.Now().Before(deadline); time.Sleep(20 * time.Millisecond) {
-		if i := strings.Index(out.String(), "http://127.0.0.1:"); i >= 0 {
-			url = strings.Fields(out.String()[i:])[0]
-		}
-	}
-	if url == "" {
-		t.Fatal("no URL printed")
-	}
+	url := waitURL(t, &out)
 
 	actx, acancel := chromedp.NewExecAllocator(context.Background(), chromedp.ExecPath(bin),
 		chromedp.Flag("headless", true), chromedp.Flag("no-sandbox", true), chromedp.Flag("disable-gpu", true),

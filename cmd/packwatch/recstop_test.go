@@ -3,7 +3,6 @@ package main
 import (
 	"context"
 	"path/filepath"
-	"strings"
 	"testing"
 	"time"
 
@@ -42,12 +41,7 @@ func TestRecordingStopsLiveGoesOn(t *testing.T) {
 	go func() {
 		done <- runSession(ctx, s, &serveFlags{addr: "127.0.0.1:0"}, "simulated", func(ctx context.Context) error { return simulator.Run(ctx, s) }, &out)
 	}()
-	url := ""
-	for deadline := time.Now().Add(30 * time.Second); url == "" && time.Now().Before(deadline); time.Sleep(20 * time.Millisecond) {
-		if i := strings.Index(out.String(), "http://127.0.0.1:"); i >= 0 {
-			url = strings.Fields(out.String()[i:])[0]
-		}
-	}
+	url := waitURL(t, &out)
 	stopped := waitState(t, url, func(s *pack.Snapshot) bool {
 		return s.Recording != nil && s.Recording.State == "stopped" && s.Recording.Error != ""
 	})

@@ -232,6 +232,19 @@ func startCLI(t *testing.T, ctx context.Context, args ...string) (url string, ou
 	return url, out, errb, code
 }
 
+// waitURL waits until a session prints its dashboard URL.
+func waitURL(t *testing.T, out *syncBuffer) string {
+	t.Helper()
+	re := regexp.MustCompile(`http://127\.0\.0\.1:\d+/`)
+	for deadline := time.Now().Add(30 * time.Second); time.Now().Before(deadline); time.Sleep(20 * time.Millisecond) {
+		if url := re.FindString(out.String()); url != "" {
+			return url
+		}
+	}
+	t.Fatalf("no URL printed: %q", out.String())
+	return ""
+}
+
 // waitState polls /api/state until cond holds.
 func waitState(t *testing.T, url string, cond func(*pack.Snapshot) bool) *pack.Snapshot {
 	t.Helper()
