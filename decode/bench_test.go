@@ -3,41 +3,21 @@ package decode
 import (
 	"testing"
 
-	"packwatch/bus"
+	"packwatch/config"
 )
 
 // BenchmarkDecodeFrame decodes an 8-byte frame with 4 scaled fields into the
 // slot values (the per-frame path; pack adds its per-slot checks on top, see
 // pack's BenchmarkEngineFrame).
 func BenchmarkDecodeFrame(b *testing.B) {
-	m := load(b, header+`
-[[frame]]
-id = 0x4D0
-period_ms = 50
-  [[frame.field]]
-  bind = "pack.current"
-  byte = 0
-  size = 2
-  order = "big"
-  signed = true
-  scale = 0.1
-  [[frame.field]]
-  bind = "pack.voltage"
-  byte = 2
-  size = 2
-  order = "big"
-  scale = 0.01
-  [[frame.field]]
-  bind = "cell[1].voltage"
-  byte = 4
-  size = 2
-  scale = 0.001
-  [[frame.field]]
-  bind = "temp[1]"
-  byte = 6
-  size = 1
-  offset = -40
-`)
+	p, err := config.Load("testdata/bench-4fields.toml")
+	if err != nil {
+		b.Fatal(err)
+	}
+	m, err := Compile(p)
+	if err != nil {
+		b.Fatal(err)
+	}
 	v := NewValues(m)
 	msg := frame(0x4D0, 0xFF, 0x38, 0x12, 0x50, 0x4C, 0x0F, 0x41, 0x00)
 	b.ReportAllocs()
@@ -50,5 +30,4 @@ period_ms = 50
 		b.Fatalf("updated %d", len(v.Updated))
 	}
 	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N), "ns/frame")
-	_ = bus.KindCAN
 }

@@ -12,50 +12,7 @@ import (
 // benchProfile has one frame of 4 fields (current, voltage, a cell, a
 // temperature), the same as decode's BenchmarkDecodeFrame, with limits on
 // each so that every field runs its trip-timer checks.
-const benchProfile = `
-[pack]
-name = "bench"
-cells = 4
-temp_sensors = 2
-capacity_ah = 10
-[limits]
-cell_high_v = 4.2
-cell_low_v = 3.0
-temp_high_c = 50
-temp_low_c = -10
-charge_current_a = 20
-discharge_current_a = 100
-[[source]]
-name = "bus"
-kind = "socketcan"
-device = "can0"
-[[frame]]
-id = 0x4D0
-period_ms = 50
-  [[frame.field]]
-  bind = "pack.current"
-  byte = 0
-  size = 2
-  order = "big"
-  signed = true
-  scale = 0.1
-  [[frame.field]]
-  bind = "pack.voltage"
-  byte = 2
-  size = 2
-  order = "big"
-  scale = 0.01
-  [[frame.field]]
-  bind = "cell[1].voltage"
-  byte = 4
-  size = 2
-  scale = 0.001
-  [[frame.field]]
-  bind = "temp[1]"
-  byte = 6
-  size = 1
-  offset = -40
-`
+const benchProfile = "../decode/testdata/bench-4fields.toml"
 
 // BenchmarkEngineFrame is the per-frame cost of Engine.Deliver: decode of 4
 // fields, their limit checks with trip timers, the charge counter, and the
@@ -64,7 +21,7 @@ period_ms = 50
 func BenchmarkEngineFrame(b *testing.B) {
 	for _, size := range []int{0, 1, 64} {
 		b.Run(map[int]string{0: "decode-only", 1: "batch1", 64: "batch64"}[size], func(b *testing.B) {
-			p, err := config.Parse("bench.toml", []byte(benchProfile))
+			p, err := config.Load(benchProfile)
 			if err != nil {
 				b.Fatal(err)
 			}
